@@ -1,0 +1,53 @@
+"""The ``tomo`` command line: parses arguments and calls the library.
+
+Each subcommand lives in its own module of this package with two functions:
+``register(subparsers)`` adds its parser and ``run(args)`` does the work and returns
+the exit status. Errors a user can cause (:class:`tomo.TomoError`) become one line on
+stderr and exit status 2; Ctrl-C gives status 130.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from .. import __version__
+from ..errors import TomoError
+
+#: Subcommands in the order a user meets them, and the module that implements each.
+COMMANDS = ["synth", "check", "layers", "invert", "plot", "export", "report", "demo"]
+
+
+def build_parser():
+    parser = argparse.ArgumentParser(
+        prog="tomo",
+        description="Shallow seismic refraction interpretation: pick QC, layered "
+                    "(intercept-time, delay-time) methods and travel-time tomography.",
+    )
+    parser.add_argument("--version", action="version", version=f"tomo {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+    for name in COMMANDS:
+        module = importlib.import_module(f"{__name__}.{name}")
+        module.register(sub)
+    return parser
+
+
+def main(argv=None):
+    """Run the command line; returns the exit status (also usable from tests)."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.run(args) or 0)
+    except TomoError as exc:
+        print(f"tomo {args.command}: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"tomo {args.command}: interrupted", file=sys.stderr)
+        return 130
+
+
+def note(message):
+    """Print a notice for the user on stderr (stdout stays for results)."""
+    print(message, file=sys.stderr, flush=True)

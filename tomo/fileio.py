@@ -1,0 +1,94 @@
+"""Small file helpers shared by every stage: atomic writes and CSV reading with line numbers."""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import math
+import os
+import tempfile
+from pathlib import Path
+
+from .errors import InputError
+
+__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float"]
+
+
+@contextlib.contextmanager
+def atomic_path(path):
+    """Yield a temporary path beside ``path``; rename it to ``path`` only on success.
+
+    A failure (exception or Ctrl-C) removes the temporary file, so no half-written
+    output is ever left under the final name.
+    """
+    path = Path(path)
+    directory = path.parent if str(path.parent) else Path(".")
+    if not directory.is_dir():
+        raise InputError("output folder does not exist", path=directory)
+    if not os.access(directory, os.W_OK):
+        raise InputError("output folder is not writable", path=directory)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=directory)
+    os.close(fd)
+    try:
+        yield Path(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+
+
+@contextlib.contextmanager
+def atomic_open(path, mode="w", **kwargs):
+    """Open a temporary file beside ``path`` for writing; rename it into place on success."""
+    with atomic_path(path) as tmp:
+        with open(tmp, mode, **kwargs) as handle:
+            yield handle
+
+
+def read_csv_rows(path):
+    """Read a UTF-8 CSV file with a header row; ``#`` lines and blank lines are skipped.
+
+    Returns
+    -------
+    header : list of str
+        Column names, stripped and lower-cased.
+    rows : list of (int, list of str)
+        Each data row with its 1-based line number in the file.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise InputError("file does not exist", path=path)
+    if path.is_dir():
+        raise InputError("is a folder, not a file", path=path)
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", path=path) from None
+    except OSError as exc:
+        raise InputError(f"cannot read: {exc.strerror}", path=path) from None
+    header = None
+    rows = []
+    for lineno, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        if not stripped or stripped.startswith("#"):
+            continue
+        fields = [f.strip() for f in next(csv.reader([line]))]
+        if header is None:
+            header = [f.lower() for f in fields]
+            continue
+        rows.append((lineno, fields))
+    if header is None:
+        raise InputError("no header row found", path=path)
+    return header, rows
+
+
+def parse_float(text, path, line, field):
+    """Parse one CSV field as a finite float or raise an InputError naming its place."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise InputError(f"expected a number, got {text!r}", path=path, line=line, field=field) from None
+    if not math.isfinite(value):
+        raise InputError(f"expected a finite number, got {text!r}", path=path, line=line, field=field)
+    return value

@@ -1,0 +1,245 @@
+"""First-arrival travel times by the fast marching method on the forward grid.
+
+The eikonal equation |grad T| = s(x, z) (s the slowness, s/m) is solved with
+``skfmm.travel_time`` (Sethian 1996, PNAS 93; second order as in Sethian 1999, Level Set
+Methods and Fast Marching Methods, ch. 8) on the mesh's forward nodes, with the air
+masked out.
+
+Point sources. A point source is the largest error of a fast-marching solver: the
+wavefront is sharply curved near it and the finite differences are poor there
+(Rickett & Fomel 1999; Sethian & Popovici 1999, Geophysics 64). We therefore start the
+march from a circle of radius ``source_radius`` node spacings around the source, on
+which times are exact for the source's own velocity (t = r s); inside the circle times
+are the exact ``r s`` as well. ``benchmarks/forward.py`` and the tests measure the gain
+against a bare point start.
+
+Fallback. scikit-fmm's second-order update can fail on sharp contrasts (a "negative
+discriminant" error); the field for that source is then solved at first order and the
+fallback is recorded.
+"""
+
+from __future__ import annotations
+
+import os
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+
+import multiprocessing as mp
+import numpy as np
+import skfmm
+
+from .errors import InputError, SolverError
+
+__all__ = ["solve_field", "sample_field", "travel_times", "ForwardResult", "DEFAULT_SOURCE_RADIUS"]
+
+#: Radius of the exactly-timed start around each source, in forward node spacings.
+DEFAULT_SOURCE_RADIUS = 3.0
+
+
+def _bilinear(grid_x0, grid_z0, h, values, x, z):
+    """Bilinear interpolation on a node grid whose row index grows downward.
+
+    ``grid_z0`` is the elevation of row 0; elevations decrease by ``h`` per row.
+    Returns values and the (i, j, fi, fj) stencil for reuse.
+    """
+    ny, nx = values.shape
+    fj = (np.asarray(x, float) - grid_x0) / h
+    fi = (grid_z0 - np.asarray(z, float)) / h
+    j = np.clip(np.floor(fj).astype(int), 0, nx - 2)
+    i = np.clip(np.floor(fi).astype(int), 0, ny - 2)
+    tx = np.clip(fj - j, 0.0, 1.0)
+    tz = np.clip(fi - i, 0.0, 1.0)
+    v = (values[i, j] * (1 - tx) * (1 - tz) + values[i, j + 1] * tx * (1 - tz)
+         + values[i + 1, j] * (1 - tx) * tz + values[i + 1, j + 1] * tx * tz)
+    return v
+
+
+def source_slowness(mesh, slowness, x, z):
+    """Slowness (s/m) at a point, from the active nodes around it."""
+    s = np.where(mesh.node_active, slowness, np.nan)
+    value = _bilinear(mesh.x0, mesh.z_top, mesh.h, s, x, z)
+    if not np.isfinite(value):
+        # a point next to masked nodes: use the mean of the finite stencil values
+        i = int(np.clip(np.floor((mesh.z_top - z) / mesh.h), 0, s.shape[0] - 2))
+        j = int(np.clip(np.floor((x - mesh.x0) / mesh.h), 0, s.shape[1] - 2))
+        block = s[i:i + 2, j:j + 2]
+        value = np.nanmean(block) if np.any(np.isfinite(block)) else np.nan
+    return float(value)
+
+
+@dataclass
+class FieldResult:
+    """One travel-time field: ``time`` (s) on the forward nodes (NaN where not solved)."""
+
+    time: np.ndarray
+    order: int
+    fallback: bool
+    source: tuple
+    source_slowness: float
+    radius: float
+
+
+def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADIUS):
+    """Travel times (s) from a point source at (``x``, ``z``) m to every forward node.
+
+    Parameters
+    ----------
+    mesh : Mesh
+    slowness : ndarray, shape ``mesh.node_shape``
+        Slowness on the forward nodes, s/m (values at inactive nodes are ignored).
+    x, z : float
+        Source position, m (distance, elevation); anywhere on or below the ground.
+    order : {1, 2}
+        Finite-difference order of the fast marching update.
+    source_radius : float
+        Radius of the exactly-timed start, in node spacings (0 gives a point start).
+
+    Returns
+    -------
+    FieldResult
+    """
+    h = mesh.h
+    active = mesh.node_active
+    s0 = source_slowness(mesh, slowness, x, z)
+    if not np.isfinite(s0) or s0 <= 0:
+        raise InputError(f"source at x = {x:g} m, z = {z:g} m is not in the ground of the mesh")
+    ny, nx = mesh.node_shape
+    radius = max(float(source_radius), 0.0) * h
+    # phi: signed distance to the start circle near the source, +1 elsewhere (skfmm only
+    # uses values next to the zero contour; far away only the sign matters).
+    reach = int(np.ceil(radius / h)) + 3
+    jc = int(round((x - mesh.x0) / h))
+    ic = int(round((mesh.z_top - z) / h))
+    i0, i1 = max(ic - reach, 0), min(ic + reach + 1, ny)
+    j0, j1 = max(jc - reach, 0), min(jc + reach + 1, nx)
+    phi = np.ones((ny, nx))
+    dist = np.hypot(mesh.node_x[None, j0:j1] - x, mesh.node_z[i0:i1, None] - z)
+    eps = 1e-3 * h
+    # A point start needs the zero contour to enclose the source: keep at least one node
+    # on the negative side.
+    r_eff = max(radius, eps)
+    local = dist - r_eff
+    if not np.any(local[active[i0:i1, j0:j1]] < 0):
+        nearest = np.unravel_index(np.argmin(np.where(active[i0:i1, j0:j1], dist, np.inf)), dist.shape)
+        r_eff = dist[nearest] + eps
+        local = dist - r_eff
+    phi[i0:i1, j0:j1] = local
+    speed = np.where(active, 1.0 / np.where(active, slowness, 1.0), 1.0)
+    phi_m = np.ma.MaskedArray(phi, mask=~active)
+    fallback = False
+    try:
+        t = skfmm.travel_time(phi_m, speed, dx=h, order=order)
+    except ValueError as exc:
+        if order == 1 or "discriminant" not in str(exc).lower():
+            raise SolverError(f"fast marching failed for the source at x = {x:g} m: {exc}") from None
+        t = skfmm.travel_time(phi_m, speed, dx=h, order=1)
+        order, fallback = 1, True
+    time = np.ma.filled(t, np.nan).astype(float)
+    time += r_eff * s0
+    inner = local <= 0
+    block = time[i0:i1, j0:j1]
+    block[inner] = dist[inner] * s0
+    time[~active] = np.nan
+    return FieldResult(time, order, fallback, (float(x), float(z)), s0, r_eff)
+
+
+def sample_field(mesh, field, x, z):
+    """Times (s) at points (m) from a FieldResult: exact within the start circle, else
+    bilinear over the four surrounding nodes (all active for points in the ground)."""
+    x = np.asarray(x, float)
+    z = np.asarray(z, float)
+    t = _bilinear(mesh.x0, mesh.z_top, mesh.h, field.time, x, z)
+    xs, zs = field.source
+    r = np.hypot(x - xs, z - zs)
+    near = r <= field.radius
+    t = np.where(near, r * field.source_slowness, t)
+    return t
+
+
+@dataclass
+class ForwardResult:
+    """Computed times for a set of picks.
+
+    Attributes
+    ----------
+    time_s : ndarray
+        One computed time per pick, s.
+    n_fields : int
+        Eikonal solves done.
+    reciprocal : bool
+        True when fields were solved from the receivers (fewer of them than shots).
+    fallbacks : list of (x, z)
+        Field origins whose second-order solve failed and were redone at first order.
+    """
+
+    time_s: np.ndarray
+    n_fields: int
+    reciprocal: bool
+    fallbacks: list = field(default_factory=list)
+
+
+def _solve_group(args):
+    mesh, slowness, origin, targets, order, radius = args
+    f = solve_field(mesh, slowness, origin[0], origin[1], order=order, source_radius=radius)
+    return sample_field(mesh, f, targets[:, 0], targets[:, 1]), f.fallback
+
+
+def travel_times(mesh, slowness, picks, order=2, source_radius=DEFAULT_SOURCE_RADIUS,
+                 workers=1, reciprocity=True, progress=None):
+    """Computed first-arrival times (s) for every pick.
+
+    One field is solved per unique shot, or per unique geophone when there are fewer
+    geophones and ``reciprocity`` is on (the travel time from A to B equals that from B
+    to A in an isotropic medium).
+
+    Parameters
+    ----------
+    mesh : Mesh
+    slowness : ndarray
+        On the forward nodes (``mesh.node_shape``), s/m.
+    picks : Picks
+        Only positions are used.
+    workers : int
+        Processes to spread the fields over (1: in this process).
+    progress : callable, optional
+        Called as ``progress(done, total)`` after each field.
+    """
+    slowness = np.asarray(slowness, float)
+    if slowness.shape != mesh.node_shape:
+        raise InputError(f"slowness has shape {slowness.shape}, expected the forward grid {mesh.node_shape}")
+    src, src_index = picks.sources()
+    rec, rec_index = picks.receivers()
+    reciprocal = bool(reciprocity and len(rec) < len(src))
+    if reciprocal:
+        origins, origin_index, targets_xz = rec, rec_index, np.column_stack([picks.source_x, picks.source_z])
+    else:
+        origins, origin_index, targets_xz = src, src_index, np.column_stack([picks.receiver_x, picks.receiver_z])
+    bad = ~mesh.contains(targets_xz[:, 0], targets_xz[:, 1])
+    if np.any(bad):
+        k = int(np.flatnonzero(bad)[0])
+        raise InputError(f"station at x = {targets_xz[k, 0]:g} m, z = {targets_xz[k, 1]:g} m is outside the ground of the mesh")
+    groups = [np.flatnonzero(origin_index == k) for k in range(len(origins))]
+    tasks = [(mesh, slowness, origins[k], targets_xz[g], order, source_radius) for k, g in enumerate(groups)]
+    out = np.empty(len(picks))
+    fallbacks = []
+    for k, (times, fell) in enumerate(_map(_solve_group, tasks, workers)):
+        out[groups[k]] = times
+        if fell:
+            fallbacks.append(tuple(origins[k]))
+        if progress is not None:
+            progress(k + 1, len(tasks))
+    if not np.all(np.isfinite(out)):
+        raise SolverError("some stations were not reached by the wavefront (isolated by the air mask?)")
+    return ForwardResult(out, len(tasks), reciprocal, fallbacks)
+
+
+def _map(func, tasks, workers):
+    """Map over tasks in order, in ``workers`` forked processes when that is > 1."""
+    workers = min(int(workers or 1), len(tasks), os.cpu_count() or 1)
+    if workers <= 1:
+        for task in tasks:
+            yield func(task)
+        return
+    ctx = mp.get_context("fork")
+    with ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
+        yield from pool.map(func, tasks, chunksize=max(1, len(tasks) // (4 * workers)))
