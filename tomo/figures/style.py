@@ -38,6 +38,14 @@ RC = {
 }
 
 
+def apply():
+    """Apply tomo's style to matplotlib's settings (done on import of this module)."""
+    matplotlib.rcParams.update(RC)
+
+
+apply()
+
+
 def color(k):
     """The k-th palette colour, cycling."""
     return PALETTE[k % len(PALETTE)]
@@ -45,9 +53,7 @@ def color(k):
 
 def new_figure(width_in=FULL_WIDTH_IN, height_in=4.0, **kwargs):
     """A figure with tomo's style applied."""
-    with plt.rc_context(RC):
-        fig = plt.figure(figsize=(width_in, height_in), **kwargs)
-    return fig
+    return plt.figure(figsize=(width_in, height_in), **kwargs)
 
 
 def save(fig, path):
@@ -57,7 +63,7 @@ def save(fig, path):
     from ..fileio import atomic_path
 
     path = Path(path)
-    with plt.rc_context(RC), atomic_path(path) as tmp:
+    with atomic_path(path) as tmp:
         fig.savefig(tmp, format=path.suffix.lstrip(".").lower() or "png", bbox_inches="tight")
     plt.close(fig)
     return path
