@@ -32,8 +32,11 @@ from .errors import InputError, SolverError
 
 __all__ = ["solve_field", "sample_field", "travel_times", "ForwardResult", "DEFAULT_SOURCE_RADIUS"]
 
-#: Radius of the exactly-timed start around each source, in forward node spacings.
-DEFAULT_SOURCE_RADIUS = 3.0
+#: Largest radius of the exactly-timed start around each source, in node spacings.
+DEFAULT_SOURCE_RADIUS = 6.0
+#: The start circle shrinks so that the slowness inside it stays within this fraction
+#: of the source's own (times inside are exact only for a uniform neighbourhood).
+SOURCE_UNIFORMITY = 0.05
 
 
 def _bilinear(grid_x0, grid_z0, h, values, x, z):
@@ -92,7 +95,9 @@ def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADI
     order : {1, 2}
         Finite-difference order of the fast marching update.
     source_radius : float
-        Radius of the exactly-timed start, in node spacings (0 gives a point start).
+        Largest radius of the exactly-timed start, in node spacings (0 gives a point
+        start). The circle is shrunk to stay inside a neighbourhood whose slowness is
+        within ``SOURCE_UNIFORMITY`` of the source's, but not below one node spacing.
 
     Returns
     -------
@@ -114,6 +119,11 @@ def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADI
     j0, j1 = max(jc - reach, 0), min(jc + reach + 1, nx)
     phi = np.ones((ny, nx))
     dist = np.hypot(mesh.node_x[None, j0:j1] - x, mesh.node_z[i0:i1, None] - z)
+    if radius > h:
+        window = slowness[i0:i1, j0:j1]
+        differs = active[i0:i1, j0:j1] & (np.abs(window - s0) > SOURCE_UNIFORMITY * s0)
+        if np.any(differs):
+            radius = float(np.clip(dist[differs].min() - h, h, radius))
     eps = 1e-3 * h
     # A point start needs the zero contour to enclose the source: keep at least one node
     # on the negative side.

@@ -102,11 +102,14 @@ def auto_mesh_spec(station_x, max_offset, spec=None):
 
     Defaults (common practice, rules of thumb):
 
-    - cell = a quarter of the median geophone spacing, rounded down to 1-2-5;
+    - cell = a quarter of the median station spacing (shots and geophones together),
+      rounded down to 1-2-5;
     - depth = a third of the longest offset below the lowest ground (a refraction
       survey rarely sees deeper than a quarter to a third of its longest offset);
-    - padding = two geophone spacings beyond the outermost stations;
-    - refine = 2 forward node intervals per model cell.
+    - padding = two station spacings beyond the outermost stations;
+    - refine = 3 forward node intervals per model cell (measured: at a quarter of
+      the spacing per cell, refine 2 misses the 1 % target for head waves, 3 meets it;
+      see tests/test_forward.py and benchmarks/forward.py).
     """
     spec = spec or MeshSpec()
     xs = np.unique(np.round(np.asarray(station_x, float), 4))
@@ -116,7 +119,7 @@ def auto_mesh_spec(station_x, max_offset, spec=None):
     cell = spec.cell_m or _nice(spacing / 4.0)
     depth = spec.depth_m or max(max_offset / 3.0, 10 * cell)
     padding = spec.padding_m if spec.padding_m is not None else 2.0 * spacing
-    refine = spec.refine or 2
+    refine = spec.refine or 3
     return MeshSpec(cell_m=cell, depth_m=depth, padding_m=padding, refine=refine)
 
 
@@ -322,7 +325,7 @@ def mesh_for_picks(picks, terrain=None, spec=None):
     """
     xs = np.concatenate([picks.source_x, picks.receiver_x])
     max_offset = float(np.max(np.abs(picks.offset))) if len(picks) else 10.0
-    spec = auto_mesh_spec(picks.receiver_x, max_offset, spec)
+    spec = auto_mesh_spec(xs, max_offset, spec)
     if terrain is None:
         pad = spec.padding_m + spec.cell_m
         terrain = flat_terrain(xs.min() - pad - spec.cell_m, xs.max() + pad + spec.cell_m, 0.0)

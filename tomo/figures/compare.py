@@ -1,0 +1,224 @@
+"""The layered and the gridded interpretation on one profile.
+
+The delay-time refractor of the layered interpretation (plus-minus or GRM depths under
+each geophone, Hagedoorn 1959; Palmer 1980) is drawn with its uncertainty over the
+tomogram, beside the iso-velocity contour chosen to stand for the same refractor, and
+their difference is plotted along the line. Where the two agree inside the uncertainty
+the refractor is well determined by two different methods; where they part, look at
+the coverage and the assumptions (the layered method assumes velocity increasing with
+depth and laterally uniform layers between shots).
+
+Uncertainty of a delay-time depth. When the layered result gives none, it is estimated
+from the pick uncertainty: a plus time t+ = t_AG + t_BG - t_AB adds three picks, so
+sigma(t+) = sqrt(3) sigma_t for independent picks, and the depth
+h = t+ V1 V2 / (2 sqrt(V2^2 - V1^2)) (Hagedoorn 1959, Geophys. Prosp. 7) carries
+sigma_h = sigma(t+) V1 V2 / (2 sqrt(V2^2 - V1^2)). Velocity errors are not included,
+so this is a lower bound.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from matplotlib import patheffects
+
+from . import style
+from .section import _edges, colorbar, display_cells, draw_base
+from ..export import contour_surface, covered
+
+__all__ = ["refractor_profiles", "layer_velocities", "refractor_contour", "layered_vs_gridded",
+           "compare_table"]
+
+_HALO = [patheffects.withStroke(linewidth=3.2, foreground="white")]
+REFRACTOR_COLOR = style.PALETTE[3]  # vermillion
+CONTOUR_COLOR = style.PALETTE[4]    # sky blue
+
+
+def layer_velocities(layered):
+    """Layer velocities (m/s) top to bottom from a layered result dict (layers.json)."""
+    layers = (layered or {}).get("layers") or []
+    return [float(layer["velocity_m_s"]) for layer in layers if layer.get("velocity_m_s") is not None]
+
+
+def _rows(layered):
+    for key in ("profile", "refractor_profile", "refractors", "refractor", "delay_time", "delay_times"):
+        value = (layered or {}).get(key)
+        if isinstance(value, dict) and "rows" in value:
+            value = value["rows"]
+        if isinstance(value, dict) and "x" in value:
+            n = len(value["x"])
+            return [{k: (v[i] if isinstance(v, (list, tuple)) else v) for k, v in value.items()} for i in range(n)]
+        if isinstance(value, list) and value and isinstance(value[0], dict):
+            return value
+    return []
+
+
+def _get(row, *names):
+    for name in names:
+        if name in row and row[name] is not None:
+            try:
+                return float(row[name])
+            except (TypeError, ValueError):
+                return float("nan")
+    return float("nan")
+
+
+def refractor_profiles(layered, sigma_t_ms=None):
+    """The delay-time refractor profile(s) of a layered result.
+
+    Parameters
+    ----------
+    layered : dict
+        layers.json content: ``layers`` and a profile with rows of ``refractor, x,
+        surface_z, depth_m, elevation_m`` (and optionally a depth uncertainty).
+    sigma_t_ms : float, optional
+        Pick uncertainty used to estimate the depth uncertainty when the profile has none.
+
+    Returns
+    -------
+    dict of int -> dict of ndarray
+        Per refractor number: ``x, surface_z, depth_m, elevation_m, sigma_m`` (m), sorted
+        by x; ``sigma_m`` NaN where unknown.
+    """
+    rows = _rows(layered)
+    velocities = layer_velocities(layered)
+    out = {}
+    for row in rows:
+        k = int(_get(row, "refractor")) if np.isfinite(_get(row, "refractor")) else 1
+        out.setdefault(k, []).append(row)
+    profiles = {}
+    for k, group in sorted(out.items()):
+        x = np.array([_get(r, "x", "x_m") for r in group])
+        surface = np.array([_get(r, "surface_z", "ground_z") for r in group])
+        depth = np.array([_get(r, "depth_m") for r in group])
+        elevation = np.array([_get(r, "elevation_m") for r in group])
+        missing = ~np.isfinite(elevation)
+        elevation[missing] = (surface - depth)[missing]
+        sigma = np.array([_get(r, "depth_sigma_m", "sigma_depth_m", "sigma_m", "uncertainty_m", "depth_error_m")
+                          for r in group])
+        if not np.any(np.isfinite(sigma)) and sigma_t_ms and len(velocities) > k:
+            v1, v2 = velocities[k - 1], velocities[k]
+            if v2 > v1:
+                sigma = np.full(x.size, np.sqrt(3.0) * sigma_t_ms * 1e-3 * v1 * v2 / (2.0 * np.sqrt(v2**2 - v1**2)))
+        order = np.argsort(x)
+        keep = np.isfinite(x[order]) & np.isfinite(elevation[order])
+        sel = order[keep]
+        profiles[k] = {"x": x[sel], "surface_z": surface[sel], "depth_m": depth[sel],
+                       "elevation_m": elevation[sel], "sigma_m": sigma[sel]}
+    return profiles
+
+
+def refractor_contour(layered, refractor=None):
+    """The iso-velocity (m/s) that stands for a refractor in the tomogram: the mean of
+    the layer velocities above and below it (common practice). ``refractor`` counts
+    from 1 (the base of the top layer); the deepest one by default."""
+    v = layer_velocities(layered)
+    if len(v) < 2:
+        return None
+    k = len(v) - 1 if refractor is None else int(refractor)
+    k = min(max(k, 1), len(v) - 1)
+    return 0.5 * (v[k - 1] + v[k])
+
+
+def compare_table(run, contour_m_s=None, refractor=None):
+    """Layered refractor and tomogram contour at the refractor's x positions.
+
+    Returns a dict with ``refractor`` (number), ``contour_m_s``, and arrays ``x``,
+    ``refractor_elevation_m``, ``sigma_m``, ``contour_elevation_m``, ``difference_m``
+    (contour minus refractor, m) and ``constrained`` (rays at the contour); or None when
+    the run holds no layered refractor profile.
+    """
+    if not run.layered:
+        return None
+    sigma_t = float(np.nanmedian(run.picks["sigma_ms"])) if np.any(np.isfinite(run.picks["sigma_ms"])) else None
+    profiles = refractor_profiles(run.layered, sigma_t)
+    if not profiles:
+        return None
+    k = max(profiles) if refractor is None else int(refractor)
+    if k not in profiles:
+        return None
+    value = contour_m_s if contour_m_s is not None else refractor_contour(run.layered, k)
+    if value is None:
+        return None
+    v = np.asarray(run.velocity, float)
+    if not (np.nanmin(v) < value < np.nanmax(v)):
+        return None
+    surface = contour_surface(run, value)
+    prof = profiles[k]
+    good = np.isfinite(surface["elevation_m"])
+    contour_z = np.interp(prof["x"], surface["x"][good], surface["elevation_m"][good], left=np.nan, right=np.nan)
+    constrained = np.interp(prof["x"], surface["x"], surface["constrained"].astype(float)) > 0.5
+    return {"refractor": k, "contour_m_s": float(value), "x": prof["x"],
+            "refractor_elevation_m": prof["elevation_m"], "sigma_m": prof["sigma_m"],
+            "contour_elevation_m": contour_z, "difference_m": contour_z - prof["elevation_m"],
+            "constrained": constrained, "surface": surface, "profile": prof}
+
+
+def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and gridded interpretation"):
+    """Delay-time refractor (with uncertainty) and its iso-velocity contour over the
+    tomogram, and their difference along the line.
+
+    Returns
+    -------
+    matplotlib.figure.Figure or None
+        None when the run holds no layered refractor profile (nothing to compare).
+    """
+    table = compare_table(run, contour_m_s, refractor)
+    if table is None:
+        return None
+    fig = style.new_figure(height_in=5.6)
+    gs = fig.add_gridspec(2, 1, height_ratios=[2.3, 1.0], hspace=0.55)
+    ax = fig.add_subplot(gs[0])
+    clip, ve = draw_base(ax, run)
+    cov = covered(run)
+    vmasked = np.ma.masked_where(~cov, np.asarray(run.velocity, float))
+    finite = np.asarray(run.velocity)[cov]
+    if finite.size:
+        image = ax.pcolormesh(_edges(run.x), _edges(run.z), display_cells(run, vmasked), cmap=style.VELOCITY_CMAP,
+                              vmin=float(finite.min()), vmax=float(finite.max()), shading="flat", zorder=1,
+                              rasterized=True)
+        image.set_clip_path(clip)
+        colorbar(fig, ax, image, "P-wave velocity (m/s)")
+    x, zr, sig = table["x"], table["refractor_elevation_m"], table["sigma_m"]
+    k = table["refractor"]
+    if np.any(np.isfinite(sig)):
+        ax.fill_between(x, zr - sig, zr + sig, color=REFRACTOR_COLOR, alpha=0.35, lw=0, zorder=3,
+                        label="delay-time uncertainty (1 sigma)")
+    ax.plot(x, zr, "-", color=REFRACTOR_COLOR, lw=1.6, zorder=4, path_effects=_HALO,
+            label=f"delay-time refractor {k}")
+    surf = table["surface"]
+    zc = np.where(surf["constrained"], surf["elevation_m"], np.nan)
+    zu = np.where(~surf["constrained"], surf["elevation_m"], np.nan)
+    ax.plot(surf["x"], zc, "--", color=CONTOUR_COLOR, lw=1.6, zorder=4, path_effects=_HALO,
+            label=f"{table['contour_m_s']:.0f} m/s contour")
+    ax.plot(surf["x"], zu, ":", color=CONTOUR_COLOR, lw=1.2, zorder=4,
+            label="contour without rays")
+    ax.set_title(f"{title} (vertical exaggeration {ve:g}:1)")
+    handles, labels = ax.get_legend_handles_labels()
+    ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.22), ncol=3, frameon=False,
+              fontsize=7.5, columnspacing=1.0)
+    bx = fig.add_subplot(gs[1], sharex=ax)
+    d = table["difference_m"]
+    if np.any(np.isfinite(sig)):
+        bx.fill_between(x, -sig, sig, color=REFRACTOR_COLOR, alpha=0.25, lw=0, label="+/- delay-time sigma")
+    bx.axhline(0.0, color=style.GREY, lw=0.8)
+    ok = table["constrained"]
+    bx.plot(x, np.where(ok, d, np.nan), "o-", color=style.PALETTE[0], ms=2.8, lw=1.0,
+            label="contour - refractor (rays)")
+    bx.plot(x, np.where(~ok, d, np.nan), "o", color=style.GREY, ms=2.8, mfc="none",
+            label="no rays at the contour")
+    bx.set_xlabel("Distance along line (m)")
+    bx.set_ylabel("Elevation difference (m)")
+    bx.legend(loc="upper left", ncol=3, fontsize=7.5, framealpha=0.9)
+    finite_d = d[np.isfinite(d)]
+    if finite_d.size:
+        lim = max(float(np.max(np.abs(finite_d))), float(np.nanmax(sig)) if np.any(np.isfinite(sig)) else 0.0, 0.5)
+        bx.set_ylim(-1.2 * lim, 1.9 * lim)
+        rms = float(np.sqrt(np.mean(d[np.isfinite(d) & ok] ** 2))) if np.any(np.isfinite(d) & ok) else float("nan")
+        bx.set_title(f"Difference along the line (positive: contour above the refractor); RMS {rms:.2f} m where rays reach",
+                     fontsize=9)
+    # the aspect-locked section is narrower than the free difference panel; match them
+    fig.canvas.draw()
+    top = ax.get_position()
+    low = bx.get_position()
+    bx.set_position([top.x0, low.y0, top.width, low.height])
+    return fig

@@ -1,0 +1,710 @@
+"""Travel-time tomography: regularised Gauss-Newton updates to the noise level.
+
+Each iteration linearises the travel times about the current model with the ray
+matrix G (``tomo.rays``) and solves, with ``scipy.sparse.linalg.lsmr`` (Fong & Saunders
+2011, SIAM J. Sci. Comput. 33) or ``lsqr`` (Paige & Saunders 1982, ACM TOMS 8), the
+damped least-squares problem for the update u of the model parameters m::
+
+    minimise  || W (r - J u) ||^2 + lam^2 ( || R (m + u - m0) ||^2 + beta^2 || m + u - m_ref ||^2 )
+
+r = observed - computed times (s), W = diag(1/sigma), J = G dm/ds the Jacobian in the
+chosen parameter (slowness s, or log-velocity with ds/dlog v = -s), R the stacked first
+differences across cells (horizontal rows weighted by ``smooth_x``, vertical rows by
+``smooth_z``), m0 the starting model and m_ref the reference model of the damping term
+(the starting model unless given). Regularising the departure from the starting model
+keeps what the data do not constrain at the starting model.
+
+The regularisation weight lam starts from the ratio of the Frobenius norms of W J and R
+(times ``lambda_start``) and is multiplied by ``lambda_cooling`` each iteration while the
+misfit is above target; if the linearised prediction already undershoots the target it
+is held instead. This is the discrepancy principle as used in Occam's inversion
+(Constable, Parker & Constable 1987, Geophysics 52, 289-300): stop at the smoothest
+model that fits the picks to their uncertainty, chi2 = mean((r / sigma)^2) = 1.
+
+Step control: the step along u is accepted only if the true (non-linear) chi2 falls;
+otherwise it is halved (a backtracking line search; Nocedal & Wright 2006, Numerical
+Optimization, sec. 3.1). A step that would overshoot the target (chi2 below
+``chi2_target - chi2_tolerance``) is shortened by linear interpolation towards the
+target, so the picks are not overfitted. Parameters are clipped to the velocity bounds
+after every update (projection; common practice).
+
+Stops: chi2 at target (within ``chi2_tolerance``), too little improvement (relative
+drop of chi2 below ``min_improvement`` twice running, or no step that reduces it), or
+the maximum number of iterations; ``RunData.stop_reason`` says which.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time as _time
+from dataclasses import asdict, dataclass, field, fields, replace
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import lsmr, lsqr
+
+from . import __version__
+from .errors import InputError, SolverError
+from .forward import DEFAULT_SOURCE_RADIUS, _map, sample_field, solve_field
+from .rays import DEFAULT_STEP, time_gradient, trace_many
+from .runfile import RunData, write_run
+
+__all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert", "run_inversion",
+           "forward_pass", "PassResult", "MIN_PICKS", "MAX_CELLS_PER_PICK"]
+
+#: Fewer picks than this cannot support a tomogram (use the layered interpretation).
+MIN_PICKS = 20
+#: More ground cells per pick than this is a mesh far too fine for the data.
+MAX_CELLS_PER_PICK = 100.0
+
+STOP_TARGET = "chi2 at target"
+STOP_STALLED = "too little improvement"
+STOP_NO_STEP = "too little improvement (no step reduced the misfit)"
+STOP_MAX = "maximum iterations"
+
+
+@dataclass(frozen=True)
+class InversionSettings:
+    """Every setting of an inversion (recorded in the run file so a run can be repeated).
+
+    Attributes
+    ----------
+    max_iterations : int
+        Most Gauss-Newton iterations.
+    chi2_target : float
+        Target of chi2 = mean((residual / sigma)^2); 1 fits the picks to their noise.
+    chi2_tolerance : float
+        Stop once chi2 <= target + tolerance; a step is shortened if it would take chi2
+        below target - tolerance.
+    min_improvement : float
+        Relative drop of chi2 per iteration below which an iteration counts as stalled;
+        two stalled iterations running stop the run.
+    default_sigma_ms : float
+        Pick uncertainty used when the pick file gives none, ms (pick errors of
+        0.5-2 ms are usual: common practice).
+    parameter : {"logv", "slowness"}
+        Model parameter of the linearised problem: log-velocity (default; scale-free
+        smoothing from 300 to 5000 m/s) or slowness.
+    smooth_x, smooth_z : float
+        Weights of the horizontal and vertical first-difference rows of R.
+    damping : float
+        beta, weight of the damping toward the reference model relative to smoothing.
+    lambda_start : float
+        Starting regularisation weight relative to ||W J||_F / ||R||_F.
+    lambda_cooling : float
+        Factor applied to lam each iteration (0 < c < 1).
+    v_min_m_s, v_max_m_s : float or None
+        Velocity bounds, m/s; None chooses them from the starting model
+        (min(150, start min / 2), max(7000, 2 x start max)).
+    solver : {"lsmr", "lsqr"}
+    solver_iterations : int
+        Iteration limit of the sparse least-squares solver.
+    solver_tol : float
+        ``atol`` = ``btol`` of the sparse solver.
+    line_search_steps : int
+        Most step halvings per iteration.
+    workers : int
+        Processes for the forward solves and ray tracing (1: in this process).
+    order : {1, 2}
+        Fast-marching order.
+    source_radius : float
+        Exactly-timed start radius around each source, node spacings.
+    ray_step : float
+        Ray-tracing step, node spacings.
+    reciprocity : bool
+        Solve fields from the geophones when there are fewer geophones than shots.
+    """
+
+    max_iterations: int = 10
+    chi2_target: float = 1.0
+    chi2_tolerance: float = 0.15
+    min_improvement: float = 0.02
+    default_sigma_ms: float = 1.0
+    parameter: str = "logv"
+    smooth_x: float = 1.0
+    smooth_z: float = 0.5
+    damping: float = 0.05
+    lambda_start: float = 1.0
+    lambda_cooling: float = 0.5
+    v_min_m_s: float | None = None
+    v_max_m_s: float | None = None
+    solver: str = "lsmr"
+    solver_iterations: int = 400
+    solver_tol: float = 1e-5
+    line_search_steps: int = 3
+    workers: int = 2
+    order: int = 2
+    source_radius: float = DEFAULT_SOURCE_RADIUS
+    ray_step: float = DEFAULT_STEP
+    reciprocity: bool = True
+
+    def check(self):
+        """Raise InputError naming the setting when a value is out of range."""
+        def bad(name, message):
+            raise InputError(f"setting {name} = {getattr(self, name)!r}: {message}", field=name)
+        if int(self.max_iterations) < 0:
+            bad("max_iterations", "must be >= 0")
+        for name in ("chi2_target", "default_sigma_ms", "lambda_start"):
+            if not (math.isfinite(getattr(self, name)) and getattr(self, name) > 0):
+                bad(name, "must be positive")
+        for name in ("chi2_tolerance", "min_improvement", "smooth_x", "smooth_z", "damping"):
+            if not (math.isfinite(getattr(self, name)) and getattr(self, name) >= 0):
+                bad(name, "must be >= 0")
+        if self.smooth_x == 0 and self.smooth_z == 0 and self.damping == 0:
+            bad("damping", "smoothing and damping are all zero: the problem has no regularisation")
+        if not 0 < self.lambda_cooling <= 1:
+            bad("lambda_cooling", "must be in (0, 1]")
+        if self.parameter not in ("logv", "slowness"):
+            bad("parameter", "expected 'logv' or 'slowness'")
+        if self.solver not in ("lsmr", "lsqr"):
+            bad("solver", "expected 'lsmr' or 'lsqr'")
+        if self.order not in (1, 2):
+            bad("order", "expected 1 or 2")
+        if not self.ray_step > 0:
+            bad("ray_step", "must be positive")
+        for name in ("v_min_m_s", "v_max_m_s"):
+            v = getattr(self, name)
+            if v is not None and not (math.isfinite(v) and v > 0):
+                bad(name, "must be a positive velocity")
+        if self.v_min_m_s is not None and self.v_max_m_s is not None and self.v_min_m_s >= self.v_max_m_s:
+            bad("v_min_m_s", f"must be below v_max_m_s = {self.v_max_m_s:g}")
+        return self
+
+    def as_dict(self):
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, values):
+        """Settings from a dict (e.g. a run file's); unknown keys are an InputError."""
+        names = {f.name for f in fields(cls)}
+        unknown = set(values) - names
+        if unknown:
+            raise InputError(f"unknown setting (expected one of {', '.join(sorted(names))})", field=sorted(unknown)[0])
+        return cls(**values)
+
+
+@dataclass
+class IterationInfo:
+    """Progress of one iteration (entry 0 is the starting model); ``str()`` is the line."""
+
+    iteration: int
+    max_iterations: int
+    chi2: float
+    rms_ms: float
+    lam: float
+    step: float
+    elapsed_s: float
+    left_s: float | None
+    timing: dict = field(default_factory=dict)
+
+    def __str__(self):
+        lam = "-" if not math.isfinite(self.lam) else f"{self.lam:.3g}"
+        left = "" if self.left_s is None else f", about {_duration(self.left_s)} left at most"
+        head = "start" if self.iteration == 0 else f"iteration {self.iteration}/{self.max_iterations}"
+        return (f"{head}: chi2 {self.chi2:.3f}, RMS {self.rms_ms:.3f} ms, lambda {lam}, "
+                f"step {self.step:.2f}, {_duration(self.elapsed_s)} elapsed{left}")
+
+
+def _duration(seconds):
+    seconds = max(float(seconds), 0.0)
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    return f"{seconds / 60:.1f} min"
+
+
+class InversionInterrupted(KeyboardInterrupt):
+    """Raised when an inversion is interrupted (Ctrl-C); ``run`` is the last finished
+    iteration (also in the run file when one was being written), ``message`` says so."""
+
+    def __init__(self, message, run=None, out_path=None):
+        super().__init__(message)
+        self.message = message
+        self.run = run
+        self.out_path = out_path
+
+
+# --- forward solves and rays, in worker processes --------------------------------------
+
+_STATE = {}
+
+
+@dataclass
+class PassResult:
+    """Computed times (s), the ray matrix (picks x cells, m) and timings of one pass."""
+
+    time_s: np.ndarray
+    matrix: sp.csr_matrix
+    forward_s: float
+    rays_s: float
+    wall_s: float
+    fallbacks: list
+    unfinished: int
+
+
+def _pass_chunk(chunk):
+    """Solve the fields of a chunk of origins and trace their rays; return sparse rows."""
+    mesh, slowness, origins, groups, targets, opts = (_STATE[k] for k in
+                                                       ("mesh", "slowness", "origins", "groups", "targets", "opts"))
+    t0 = _time.perf_counter()
+    fields_ = [solve_field(mesh, slowness, origins[k, 0], origins[k, 1], order=opts["order"],
+                           source_radius=opts["source_radius"]) for k in chunk]
+    t1 = _time.perf_counter()
+    rows = np.concatenate([groups[k] for k in chunk])
+    which = np.concatenate([np.full(groups[k].size, n) for n, k in enumerate(chunk)])
+    starts = targets[rows]
+    times = np.concatenate([sample_field(mesh, f, targets[groups[k], 0], targets[groups[k], 1])
+                            for f, k in zip(fields_, chunk)])
+    grads = [time_gradient(mesh, f.time) for f in fields_]
+    gx = np.stack([g[0] for g in grads])
+    gz = np.stack([g[1] for g in grads])
+    del grads
+    rays = trace_many(mesh, gx, gz, np.array([f.source for f in fields_]), np.array([f.radius for f in fields_]),
+                      starts, which, step=opts["ray_step"])
+    t2 = _time.perf_counter()
+    fallbacks = [f.source for f in fields_ if f.fallback]
+    return rows, times, rays.matrix, t1 - t0, t2 - t1, fallbacks, rays.unfinished
+
+
+def forward_pass(mesh, cell_slowness, picks, settings=None):
+    """Computed times and the ray matrix for a cell slowness model (s/m, (nz, nx)).
+
+    Fields are solved from the shots (or from the geophones when there are fewer of
+    them and ``settings.reciprocity``), in ``settings.workers`` forked processes.
+    """
+    settings = settings or InversionSettings()
+    t_start = _time.perf_counter()
+    slowness = mesh.cells_to_nodes(np.where(mesh.ground, cell_slowness, 0.0))
+    src, src_index = picks.sources()
+    rec, rec_index = picks.receivers()
+    if settings.reciprocity and len(rec) < len(src):
+        origins, origin_index, targets = rec, rec_index, np.column_stack([picks.source_x, picks.source_z])
+    else:
+        origins, origin_index, targets = src, src_index, np.column_stack([picks.receiver_x, picks.receiver_z])
+    groups = [np.flatnonzero(origin_index == k) for k in range(len(origins))]
+    workers = max(1, min(int(settings.workers), len(origins)))
+    # chunks of several origins: tracing many rays at once amortises numpy overhead,
+    # while a few chunks per worker balance the load
+    n_chunks = min(len(origins), max(1, workers * 2)) if workers > 1 else 1
+    order = np.argsort([-g.size for g in groups])  # big groups first
+    chunks = [sorted(order[k::n_chunks].tolist()) for k in range(n_chunks)]
+    _ = mesh.cell_to_node  # build once before forking
+    _STATE.update(mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
+                  opts={"order": settings.order, "source_radius": settings.source_radius,
+                        "ray_step": settings.ray_step})
+    try:
+        parts = list(_map(_pass_chunk, chunks, workers))
+    finally:
+        _STATE.clear()
+    n = len(picks)
+    times = np.empty(n)
+    perm = np.concatenate([p[0] for p in parts])
+    blocks = sp.vstack([p[2] for p in parts]).tocsr()
+    inverse = np.empty(n, int)
+    inverse[perm] = np.arange(n)
+    matrix = blocks[inverse]
+    for rows, t, *_ in parts:
+        times[rows] = t
+    forward_s = sum(p[3] for p in parts)
+    rays_s = sum(p[4] for p in parts)
+    fallbacks = [fb for p in parts for fb in p[5]]
+    unfinished = sum(p[6] for p in parts)
+    if not np.all(np.isfinite(times)):
+        raise SolverError("some stations were not reached by the wavefront (isolated by the air mask?)")
+    return PassResult(times, matrix, forward_s, rays_s, _time.perf_counter() - t_start, fallbacks, unfinished)
+
+
+# --- regularisation -----------------------------------------------------------------
+
+def smoothness_operator(mesh, smooth_x=1.0, smooth_z=1.0):
+    """Stacked first differences between neighbouring ground cells.
+
+    Returns a sparse matrix over the ground cells (in row-major order of
+    ``mesh.ground``): horizontal rows weighted by ``smooth_x``, vertical rows by
+    ``smooth_z``. Differences are per cell (dimensionless), so the weight of a
+    roughness does not depend on the cell size.
+    """
+    ground = mesh.ground
+    index = np.full(ground.shape, -1)
+    index[ground] = np.arange(int(ground.sum()))
+    n = int(ground.sum())
+    blocks = []
+    for weight, a, b in ((smooth_x, index[:, :-1], index[:, 1:]), (smooth_z, index[:-1, :], index[1:, :])):
+        if weight <= 0:
+            continue
+        ok = (a >= 0) & (b >= 0)
+        a, b = a[ok], b[ok]
+        m = a.size
+        rows = np.repeat(np.arange(m), 2)
+        cols = np.column_stack([a, b]).ravel()
+        vals = np.tile([-weight, weight], m)
+        blocks.append(sp.csr_matrix((vals, (rows, cols)), shape=(m, n)))
+    if not blocks:
+        return sp.csr_matrix((0, n))
+    return sp.vstack(blocks).tocsr()
+
+
+# --- the inversion ------------------------------------------------------------------
+
+def _to_param(velocity, parameter):
+    return np.log(velocity) if parameter == "logv" else 1.0 / velocity
+
+
+def _to_velocity(m, parameter):
+    return np.exp(m) if parameter == "logv" else 1.0 / m
+
+
+def _bounds_in_param(v_min, v_max, parameter):
+    if parameter == "logv":
+        return math.log(v_min), math.log(v_max)
+    return 1.0 / v_max, 1.0 / v_min
+
+
+def _check_inputs(picks, mesh, start_velocity, settings):
+    n = len(picks)
+    if picks.time_s is None:
+        raise InputError("the picks have no times (a layout file?); the inversion needs first-arrival times",
+                         path=picks.path, field="time_ms")
+    n_src = len(picks.sources()[0])
+    if n < MIN_PICKS or n_src < 2:
+        raise InputError(f"too few picks for a tomogram: {n} picks from {n_src} shot(s); at least "
+                         f"{MIN_PICKS} picks from 2 or more shots are needed (use 'tomo layers' for so few)",
+                         path=picks.path)
+    n_cells = int(mesh.ground.sum())
+    if n_cells > MAX_CELLS_PER_PICK * n:
+        raise InputError(f"too few picks for the mesh: {n} picks for {n_cells} ground cells (more than "
+                         f"{MAX_CELLS_PER_PICK:g} cells per pick); use larger cells (mesh cell_m, now {mesh.cell:g} m)",
+                         path=picks.path)
+    xs = np.concatenate([picks.source_x, picks.receiver_x])
+    zs = np.concatenate([picks.source_z, picks.receiver_z])
+    bad = ~mesh.contains(xs, zs)
+    if np.any(bad):
+        k = int(np.flatnonzero(bad)[0])
+        role = "shot" if k < n else "geophone"
+        line = None if picks.line is None else int(picks.line[k % n])
+        raise InputError(f"the mesh does not cover the {role} at x = {xs[k]:g} m, z = {zs[k]:g} m "
+                         f"(mesh: {mesh.describe()})", path=picks.path, line=line)
+    v = np.asarray(start_velocity, float)
+    if v.shape != mesh.shape:
+        raise InputError(f"starting model has shape {v.shape}, expected the mesh's {mesh.shape}")
+    vg = v[mesh.ground]
+    if not np.all(np.isfinite(vg)) or np.any(vg <= 0):
+        raise InputError("starting model has a non-finite or non-positive velocity in the ground")
+    v_lo, v_hi = float(vg.min()), float(vg.max())
+    v_min = settings.v_min_m_s if settings.v_min_m_s is not None else min(150.0, 0.5 * v_lo)
+    v_max = settings.v_max_m_s if settings.v_max_m_s is not None else max(7000.0, 2.0 * v_hi)
+    if v_min >= v_max:
+        raise InputError(f"velocity bounds {v_min:g} to {v_max:g} m/s are empty", field="v_min_m_s")
+    if v_lo < v_min * (1 - 1e-9) or v_hi > v_max * (1 + 1e-9):
+        raise InputError(f"velocity bounds {v_min:g} to {v_max:g} m/s exclude the starting model "
+                         f"(its velocities span {v_lo:.0f} to {v_hi:.0f} m/s)",
+                         field="v_min_m_s" if v_lo < v_min else "v_max_m_s")
+    return v_min, v_max
+
+
+def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=None, layered=None,
+           notes=None, extra_settings=None, reference_velocity=None):
+    """Invert first-arrival picks for a gridded velocity model (see module docstring).
+
+    Parameters
+    ----------
+    picks : Picks
+        Observed times (s) and uncertainties (s; ``settings.default_sigma_ms`` where
+        absent).
+    mesh : Mesh
+        Model grid (the unknowns) and forward grid.
+    start_velocity : ndarray (nz, nx)
+        Starting model, m/s (NaN or anything in the air).
+    settings : InversionSettings, optional
+    progress : callable, optional
+        Called with an :class:`IterationInfo` after the starting model and after each
+        finished iteration (``str(info)`` is a one-line summary). An exception raised
+        in it stops the run; KeyboardInterrupt becomes :class:`InversionInterrupted`.
+    out_path : str or Path, optional
+        Run file (HDF5) rewritten atomically after every finished iteration.
+    layered : dict, optional
+        Layered interpretation used for the start, stored in the run file.
+    notes : list of str, optional
+        Notes stored in the run file.
+    extra_settings : dict, optional
+        More entries for the recorded settings (start kind, mesh spec, files).
+    reference_velocity : ndarray (nz, nx), optional
+        Reference model of the damping term, m/s (default: the starting model).
+
+    Returns
+    -------
+    RunData
+    """
+    settings = (settings or InversionSettings()).check()
+    v_min, v_max = _check_inputs(picks, mesh, start_velocity, settings)
+    notes = list(notes or [])
+    par = settings.parameter
+    ground = mesh.ground
+    gidx = np.flatnonzero(ground.ravel())
+    start = np.where(ground, np.asarray(start_velocity, float), np.nan)
+    if reference_velocity is None:
+        ref_v = start
+    else:
+        ref_v = np.asarray(reference_velocity, float)
+        if ref_v.shape != mesh.shape or not np.all(np.isfinite(ref_v[ground])) or np.any(ref_v[ground] <= 0):
+            raise InputError("reference model must be positive and finite in the ground, shaped like the mesh")
+    lo, hi = _bounds_in_param(v_min, v_max, par)
+    m0 = _to_param(start[ground], par)
+    m_ref = np.clip(_to_param(ref_v[ground], par), lo, hi)
+    if picks.sigma_s is None:
+        sigma = np.full(len(picks), settings.default_sigma_ms * 1e-3)
+        notes.append(f"the picks give no uncertainties: sigma = {settings.default_sigma_ms:g} ms assumed for every pick")
+    else:
+        sigma = np.asarray(picks.sigma_s, float)
+    observed = np.asarray(picks.time_s, float)
+    weight = 1.0 / sigma
+    R = smoothness_operator(mesh, settings.smooth_x, settings.smooth_z)
+    n_par = gidx.size
+    recorded = settings.as_dict()
+    recorded.update(v_min_m_s_used=v_min, v_max_m_s_used=v_max, sigma_default_used=picks.sigma_s is None)
+    recorded.update(extra_settings or {})
+
+    def velocity_grid(m):
+        v = np.full(mesh.shape, np.nan)
+        v[ground] = _to_velocity(m, par)
+        return v
+
+    def evaluate(m):
+        v = velocity_grid(m)
+        res = forward_pass(mesh, np.where(ground, 1.0 / v, 0.0), picks, settings)
+        r = observed - res.time_s
+        chi2 = float(np.mean((r * weight) ** 2))
+        return res, r, chi2
+
+    timing = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "passes": 0, "pass_wall_s": 0.0}
+    t_begin = _time.perf_counter()
+
+    def account(res):
+        timing["forward_s"] += res.forward_s
+        timing["rays_s"] += res.rays_s
+        timing["pass_wall_s"] += res.wall_s
+        timing["passes"] += 1
+
+    res, r, chi2 = evaluate(m0)
+    account(res)
+    m = m0.copy()
+    history = {"chi2": [chi2], "rms_ms": [_rms_ms(r)], "lambda": [float("nan")], "step": [0.0]}
+    models = []
+    state = {"run": None}
+
+    def snapshot(stop_reason="", converged=False):
+        cov = np.asarray(res.matrix.sum(axis=0)).reshape(mesh.shape)
+        run = RunData(
+            x=mesh.x.copy(), z=mesh.z.copy(), velocity=velocity_grid(m), coverage=np.where(ground, cov, 0.0),
+            start_velocity=start.copy(), terrain_x=mesh.terrain.x.copy(), terrain_z=mesh.terrain.z.copy(),
+            picks={"source_x": picks.source_x.copy(), "source_z": picks.source_z.copy(),
+                   "receiver_x": picks.receiver_x.copy(), "receiver_z": picks.receiver_z.copy(),
+                   "observed_ms": observed * 1e3, "computed_ms": res.time_s * 1e3, "sigma_ms": sigma * 1e3},
+            history={k: np.array(v, float) for k, v in history.items()},
+            iteration_models=list(models), chi2=history["chi2"][-1], rms_ms=history["rms_ms"][-1],
+            iterations=len(models), converged=bool(converged), stop_reason=stop_reason,
+            settings=json.loads(json.dumps(recorded, default=_plain)), mesh=mesh.as_dict(),
+            layered=layered, notes=list(notes), tomo_version=__version__,
+        )
+        if res.fallbacks:
+            run.notes.append(f"{len(res.fallbacks)} field(s) solved at first order after a second-order failure")
+        if res.unfinished:
+            run.notes.append(f"{res.unfinished} ray(s) did not reach their source and were closed straight")
+        state["run"] = run
+        if out_path is not None:
+            write_run(out_path, run)
+        return run
+
+    def report(k, lam, step, t_iter):
+        if progress is None:
+            return
+        elapsed = _time.perf_counter() - t_begin
+        left = None
+        if k > 0 and k < settings.max_iterations:
+            per = elapsed / (k + 0.5)
+            left = per * (settings.max_iterations - k)
+        progress(IterationInfo(k, settings.max_iterations, history["chi2"][-1], history["rms_ms"][-1],
+                               lam, step, elapsed, left, dict(timing)))
+
+    target_hi = settings.chi2_target + settings.chi2_tolerance
+    target_lo = max(settings.chi2_target - settings.chi2_tolerance, 0.0)
+    try:
+        snapshot("running")
+        report(0, float("nan"), 0.0, 0.0)
+        stop, converged = None, False
+        if chi2 <= target_hi:
+            stop, converged = STOP_TARGET, True
+        lam_prev = None
+        stalled = 0
+        k = 0
+        while stop is None:
+            if k >= settings.max_iterations:
+                stop = STOP_MAX
+                break
+            k += 1
+            t_iter = _time.perf_counter()
+            G = res.matrix[:, gidx]
+            if par == "logv":
+                J = G @ sp.diags(-np.exp(-m))  # ds/dlog v = -s
+            else:
+                J = G
+            A = sp.diags(weight) @ J
+            b = weight * r
+            t_solve = _time.perf_counter()
+            if lam_prev is None:
+                norm_a = math.sqrt(float(A.multiply(A).sum()))
+                norm_r = math.sqrt(float(R.multiply(R).sum()) + settings.damping ** 2 * n_par)
+                lam_try = settings.lambda_start * norm_a / max(norm_r, 1e-30)
+                candidates = [lam_try]
+            else:
+                candidates = [lam_prev * settings.lambda_cooling, lam_prev]
+            u, lam, predicted = None, None, None
+            for lam_c in candidates:
+                u_c = _solve(A, b, R, m - m0, m - m_ref, lam_c, settings)
+                pred = float(np.mean((b - A @ u_c) ** 2))
+                u, lam, predicted = u_c, lam_c, pred
+                # undershooting the target in the linear prediction: hold lam instead
+                if pred >= target_lo or lam_prev is None:
+                    break
+            timing["solve_s"] += _time.perf_counter() - t_solve
+            # line search on the true misfit
+            alpha, best = 1.0, None
+            for _ in range(settings.line_search_steps + 1):
+                trial = np.clip(m + alpha * u, lo, hi)
+                res_t, r_t, chi2_t = evaluate(trial)
+                account(res_t)
+                if chi2_t < chi2:
+                    best = (trial, res_t, r_t, chi2_t, alpha)
+                    if chi2_t < target_lo and chi2 > settings.chi2_target:
+                        # overshoot: shorten the step towards the target (chi2 is close
+                        # to linear in alpha over a step this size)
+                        a2 = alpha * (chi2 - settings.chi2_target) / (chi2 - chi2_t)
+                        trial2 = np.clip(m + a2 * u, lo, hi)
+                        res_2, r_2, chi2_2 = evaluate(trial2)
+                        account(res_2)
+                        if chi2_2 < chi2 and abs(chi2_2 - settings.chi2_target) < abs(chi2_t - settings.chi2_target):
+                            best = (trial2, res_2, r_2, chi2_2, a2)
+                    break
+                alpha *= 0.5
+            lam_prev = lam
+            if best is None:
+                stop = STOP_NO_STEP
+                break
+            m, res, r, chi2_new, alpha = best
+            improvement = (chi2 - chi2_new) / chi2
+            chi2 = chi2_new
+            models.append(velocity_grid(m))
+            for key, val in (("chi2", chi2), ("rms_ms", _rms_ms(r)), ("lambda", lam), ("step", alpha)):
+                history[key].append(val)
+            if chi2 <= target_hi:
+                stop, converged = STOP_TARGET, True
+            elif improvement < settings.min_improvement:
+                stalled += 1
+                if stalled >= 2:
+                    stop = STOP_STALLED
+            else:
+                stalled = 0
+            if stop is None and k >= settings.max_iterations:
+                stop = STOP_MAX
+            snapshot(stop or "running", converged)
+            report(k, lam, alpha, _time.perf_counter() - t_iter)
+        run = snapshot(stop, converged)
+    except KeyboardInterrupt:
+        last = state["run"]
+        n_done = 0 if last is None else last.iterations
+        where = f" in {out_path}" if out_path is not None and last is not None else ""
+        raise InversionInterrupted(f"inversion interrupted; the last finished iteration ({n_done}) is{where or ' kept'}"
+                                   f"{'' if where else ' in memory'}", last, out_path) from None
+    run.settings["timing"] = dict(timing, total_s=_time.perf_counter() - t_begin)
+    return run
+
+
+def _plain(value):
+    if isinstance(value, (np.floating, np.integer, np.bool_)):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    return str(value)
+
+
+def _rms_ms(r):
+    return float(np.sqrt(np.mean(r ** 2)) * 1e3)
+
+
+def _solve(A, b, R, rough, dev, lam, settings):
+    """Solve the stacked damped least-squares system for the update u."""
+    n = A.shape[1]
+    beta = settings.damping
+    blocks = [A]
+    rhs = [b]
+    if R.shape[0]:
+        blocks.append(lam * R)
+        rhs.append(-lam * (R @ rough))
+    if beta > 0:
+        blocks.append(sp.identity(n, format="csr") * (lam * beta))
+        rhs.append(-lam * beta * dev)
+    M = sp.vstack(blocks).tocsr()
+    y = np.concatenate(rhs)
+    tol = settings.solver_tol
+    if settings.solver == "lsmr":
+        out = lsmr(M, y, atol=tol, btol=tol, maxiter=settings.solver_iterations)
+    else:
+        out = lsqr(M, y, atol=tol, btol=tol, iter_lim=settings.solver_iterations)
+    u = out[0]
+    if not np.all(np.isfinite(u)):
+        raise SolverError("the least-squares update is not finite (check the picks for gross errors)")
+    return u
+
+
+def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered", out_path="run.h5",
+                  progress=None, **settings):
+    """Read the files, build the mesh and starting model, invert, write the run file.
+
+    Parameters
+    ----------
+    picks_path : str or Path
+        Pick file (CSV).
+    terrain_path, mesh_path : str or Path, optional
+        Terrain file (CSV) and mesh spec (TOML); the mesh is otherwise chosen from the
+        survey (``tomo.mesh.mesh_for_picks``).
+    start : {"layered", "gradient"}
+        Starting model: from the layered interpretation (``tomo.layered``) or a 1-D
+        velocity-depth gradient fitted to the picks (``tomo.starting``).
+    out_path : str or Path
+        Run file, rewritten after every finished iteration.
+    progress : callable, optional
+        See :func:`invert`.
+    **settings
+        Fields of :class:`InversionSettings`.
+
+    Returns
+    -------
+    RunData
+    """
+    from .mesh import mesh_for_picks, read_mesh_spec
+    from .starting import gradient_start, layered_start
+    from .survey import read_picks, read_terrain
+
+    try:
+        opts = InversionSettings.from_dict(settings).check()
+    except TypeError as exc:
+        raise InputError(f"bad setting: {exc}") from None
+    terrain = read_terrain(terrain_path) if terrain_path else None
+    picks = read_picks(picks_path, terrain=terrain)
+    spec = read_mesh_spec(mesh_path) if mesh_path else None
+    mesh, spec = mesh_for_picks(picks, terrain, spec)
+    notes = list(picks.notices)
+    layered = None
+    if start == "layered":
+        velocity, layered = layered_start(picks, mesh, terrain)
+    elif start == "gradient":
+        velocity, info = gradient_start(picks, mesh, return_fit=True)
+        notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
+                     f"fitted to the first arrivals")
+    else:
+        raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
+    extra = {"start": start, "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
+             "terrain_file": None if terrain_path is None else str(terrain_path),
+             "mesh_file": None if mesh_path is None else str(mesh_path)}
+    return invert(picks, mesh, velocity, opts, progress=progress, out_path=out_path, layered=layered,
+                  notes=notes, extra_settings=extra)

@@ -1,0 +1,605 @@
+"""Layered interpretation of a line: intercept-time and dipping-layer formulas, a
+line-wide layer table, warnings, and the starting model for the tomography.
+
+Methods (all assume layers whose velocity increases with depth):
+
+- n horizontal layers, intercept-time method. The head wave of layer n arrives at
+  ``t_n = x/V_n + sum_{i<n} 2 h_i sqrt(V_n^2 - V_i^2) / (V_i V_n)``, so the thicknesses
+  follow from the intercept times one layer at a time (Telford, Geldart & Sheriff 1990,
+  Applied Geophysics, 2nd ed., sec. 4.3; Lowrie & Fichtner 2020, Fundamentals of
+  Geophysics, 3rd ed.). With dipping layers the same formula applied to the true
+  velocities gives the thickness perpendicular to the layers under the shot.
+- Dipping refractor from reversed shots: with ``a_d``, ``a_u`` the down-dip and up-dip
+  apparent velocities, ``dip = (asin(V1/a_d) - asin(V1/a_u))/2`` and
+  ``theta_c = (asin(V1/a_d) + asin(V1/a_u))/2``, ``V = V1/sin(theta_c)`` (Telford et al.
+  1990, sec. 4.3.3, from memory). For deeper refractors we use the same relation with
+  the angles in the first layer, exact when all interfaces are parallel (Snell's law
+  along the ray: ``sin(theta_1n +- dip) = V1/a``).
+- Delay times under every geophone: :mod:`tomo.delay` (plus-minus, GRM).
+
+Cautions that go with every result (see :data:`CAUTIONS`): the solution is not unique;
+a layer slower than the one above it, or too thin to give first arrivals of its own,
+does not show on the travel-time curves, and the depths below it come out wrong;
+velocities do not identify rock types; calibrate against boreholes; designs need review
+by a licensed professional under local codes.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, SideFit, fit_shots
+from .errors import InputError
+
+__all__ = [
+    "intercept_thicknesses", "intercept_times", "crossover_distances", "critical_distances",
+    "dipping_refractor", "hidden_layer_thickness", "interpret_line", "starting_model",
+    "LayeredResult", "CAUTIONS",
+]
+
+CAUTIONS = [
+    "Layered refraction methods assume velocity increases with depth; a layer slower than "
+    "the one above it (velocity inversion) gives no first arrivals and the depths below it "
+    "come out too deep.",
+    "A layer too thin to give first arrivals of its own (hidden layer) does not show on the "
+    "travel-time curves; its presence makes the computed depths too shallow.",
+    "The interpretation is not unique: other models fit the same times.",
+    "Velocities do not identify rock types (ranges of materials overlap); calibrate against "
+    "boreholes or test pits.",
+    "Engineering designs based on these results need review by a licensed professional "
+    "under local codes.",
+]
+
+
+# --- closed-form layer formulas -------------------------------------------------
+
+def _cos_term(v_i, v_n):
+    """sqrt(V_n^2 - V_i^2) / (V_i V_n) = cos(theta_in) / V_i, s/m."""
+    return math.sqrt(max(v_n * v_n - v_i * v_i, 0.0)) / (v_i * v_n)
+
+
+def intercept_times(velocities_m_s, thicknesses_m):
+    """Intercept times (s) of the head waves of layers 2..n over horizontal layers.
+
+    ``t_n = sum_{i<n} 2 h_i sqrt(V_n^2 - V_i^2) / (V_i V_n)`` (Telford et al. 1990, sec. 4.3).
+
+    Parameters
+    ----------
+    velocities_m_s : sequence of float, length n
+        Layer velocities top to bottom, m/s, increasing.
+    thicknesses_m : sequence of float, length n-1
+        Thicknesses of the layers above the last, m.
+    """
+    v = [float(x) for x in velocities_m_s]
+    h = [float(x) for x in thicknesses_m]
+    return np.array([sum(2 * h[i] * _cos_term(v[i], v[n]) for i in range(n)) for n in range(1, len(v))])
+
+
+def intercept_thicknesses(velocities_m_s, intercepts_s):
+    """Thicknesses (m) of layers 1..n-1 from the intercept times of layers 2..n.
+
+    Inverts :func:`intercept_times` layer by layer:
+    ``h_{n-1} = (t_n - sum_{i<n-1} 2 h_i cos(theta_in)/V_i) V_{n-1} V_n / (2 sqrt(V_n^2 - V_{n-1}^2))``.
+
+    Parameters
+    ----------
+    velocities_m_s : sequence of float, length n
+    intercepts_s : sequence of float, length n-1
+        Intercept time of the branch of layer k (k = 2..n), s.
+
+    Returns
+    -------
+    ndarray, length n-1
+        NaN for a layer whose velocity does not increase downward.
+    """
+    v = [float(x) for x in velocities_m_s]
+    t = [float(x) for x in intercepts_s]
+    if len(t) != len(v) - 1:
+        raise InputError(f"need {len(v) - 1} intercept times for {len(v)} velocities, got {len(t)}")
+    h = []
+    for n in range(1, len(v)):
+        if not v[n] > v[n - 1]:
+            h.append(float("nan"))
+            continue
+        above = sum(2 * h[i] * _cos_term(v[i], v[n]) for i in range(n - 1) if math.isfinite(h[i]))
+        h.append((t[n - 1] - above) / (2 * _cos_term(v[n - 1], v[n])))
+    return np.array(h)
+
+
+def crossover_distances(velocities_m_s, thicknesses_m):
+    """Offsets (m) where branch k+1 overtakes branch k over horizontal layers.
+
+    ``x_c = (t_{k+1} - t_k) / (1/V_k - 1/V_{k+1})``; for two layers this is
+    ``2H sqrt((V2+V1)/(V2-V1))`` (Telford et al. 1990, sec. 4.3).
+    """
+    v = np.asarray(velocities_m_s, float)
+    t = np.concatenate([[0.0], intercept_times(v, thicknesses_m)])
+    return (t[1:] - t[:-1]) / (1 / v[:-1] - 1 / v[1:])
+
+
+def critical_distances(velocities_m_s, thicknesses_m):
+    """Critical distances (m): nearest offset at which each head wave exists.
+
+    ``x_crit,n = sum_{i<n} 2 h_i tan(theta_in)``, ``sin(theta_in) = V_i/V_n``; for two
+    layers ``2H tan(theta_c)`` (Telford et al. 1990, sec. 4.3).
+    """
+    v = [float(x) for x in velocities_m_s]
+    h = [float(x) for x in thicknesses_m]
+    out = []
+    for n in range(1, len(v)):
+        total = 0.0
+        for i in range(n):
+            s = v[i] / v[n]
+            total += 2 * h[i] * s / math.sqrt(1 - s * s)
+        out.append(total)
+    return np.array(out)
+
+
+def dipping_refractor(v1_m_s, apparent_down_m_s, apparent_up_m_s, intercept_down_s=None,
+                      intercept_up_s=None):
+    """True velocity, dip and depths of a plane dipping refractor from reversed shots.
+
+    Parameters
+    ----------
+    v1_m_s : float
+        Velocity of the first layer, m/s.
+    apparent_down_m_s, apparent_up_m_s : float
+        Apparent velocities shooting down-dip (slower) and up-dip, m/s. If the "down"
+        one is faster the dip comes out negative (the refractor rises that way).
+    intercept_down_s, intercept_up_s : float, optional
+        Intercept times of the two branches, s.
+
+    Returns
+    -------
+    dict
+        ``velocity_m_s``, ``dip_deg`` (positive: deepening in the down-dip shooting
+        direction), ``critical_angle_deg`` and, with intercepts, ``perpendicular_depth_down_m``,
+        ``perpendicular_depth_up_m`` (under the down-dip and up-dip shots) and the vertical
+        depths ``vertical_depth_*_m = perpendicular / cos(dip)``.
+
+    Notes
+    -----
+    ``dip = (asin(V1/a_d) - asin(V1/a_u))/2``, ``theta_c = (asin(V1/a_d) + asin(V1/a_u))/2``,
+    ``V2 = V1 / sin(theta_c)``, ``h = t_i V1 / (2 cos(theta_c))`` (Telford, Geldart &
+    Sheriff 1990, sec. 4.3.3, from memory).
+    """
+    v1 = float(v1_m_s)
+    ad, au = float(apparent_down_m_s), float(apparent_up_m_s)
+    if not (ad > v1 and au > v1):
+        raise InputError(f"apparent velocities ({ad:.0f}, {au:.0f} m/s) must exceed the top-layer velocity ({v1:.0f} m/s)")
+    ed, eu = math.asin(v1 / ad), math.asin(v1 / au)
+    dip = 0.5 * (ed - eu)
+    theta = 0.5 * (ed + eu)
+    out = {"velocity_m_s": v1 / math.sin(theta), "dip_deg": math.degrees(dip),
+           "critical_angle_deg": math.degrees(theta)}
+    for name, ti in (("down", intercept_down_s), ("up", intercept_up_s)):
+        if ti is not None:
+            h = float(ti) * v1 / (2 * math.cos(theta))
+            out[f"perpendicular_depth_{name}_m"] = h
+            out[f"vertical_depth_{name}_m"] = h / math.cos(dip)
+    return out
+
+
+def hidden_layer_thickness(spacing_m, v_top_m_s, v_below_m_s):
+    """Rough thickness (m) below which a layer gives no first arrivals of its own.
+
+    ``spacing / sqrt((Vn - V1)/(Vn + V1))`` — a rule of thumb (common practice): such a
+    layer's branch would span less than about one geophone spacing.
+    """
+    return float(spacing_m) / math.sqrt((v_below_m_s - v_top_m_s) / (v_below_m_s + v_top_m_s))
+
+
+# --- line interpretation -------------------------------------------------------
+
+@dataclass
+class LayeredResult:
+    """A line's layered interpretation (the content of ``layers.json``).
+
+    Attributes
+    ----------
+    layers : list of dict
+        Top to bottom: ``velocity_m_s``, ``thickness_m`` (None for the last layer),
+        ``depth_top_m``, ``velocity_sigma_m_s``, ``thickness_sigma_m``, ``reversed``
+        (refractor seen from both directions), ``n_sides`` (shot sides that saw it).
+    sides : list of SideFit
+        Branch fits per shot side.
+    layer_of_branch : list of list of int
+        For each side, the line layer (1-based) of each branch; 0 when unmatched.
+    shot_depths : list of dict
+        Per shot side: ``shot_x``, ``side``, ``depths_m`` {layer k: depth of the top of
+        layer k below the shot, m} from the intercept times.
+    dips : list of dict
+        Per reversed pair and refractor: shots, apparent velocities, true velocity, dip.
+    profile : RefractorProfile or None
+        Delay-time refractor depths under the geophones (:mod:`tomo.delay`).
+    warnings, messages : list of str
+        Warnings about the interpretation; per-shot problems with the input.
+    cautions : list of str
+    options : dict
+        Settings used.
+    """
+
+    layers: list
+    sides: list
+    layer_of_branch: list
+    shot_depths: list = field(default_factory=list)
+    dips: list = field(default_factory=list)
+    profile: object = None
+    warnings: list = field(default_factory=list)
+    messages: list = field(default_factory=list)
+    cautions: list = field(default_factory=lambda: list(CAUTIONS))
+    options: dict = field(default_factory=dict)
+
+    @property
+    def velocities_m_s(self):
+        return np.array([lay["velocity_m_s"] for lay in self.layers])
+
+    @property
+    def thicknesses_m(self):
+        return np.array([np.nan if lay["thickness_m"] is None else lay["thickness_m"] for lay in self.layers[:-1]])
+
+    def to_dict(self):
+        sides = []
+        for fit, layers in zip(self.sides, self.layer_of_branch):
+            d = fit.to_dict()
+            d["layer_of_branch"] = [int(k) for k in layers]
+            sides.append(d)
+        return {
+            "layers": [dict(lay) for lay in self.layers],
+            "shots": sides,
+            "shot_depths": [dict(s, depths_m={str(k): v for k, v in s["depths_m"].items()}) for s in self.shot_depths],
+            "dips": [dict(d) for d in self.dips],
+            "delay_time_profile": None if self.profile is None else self.profile.to_dict(),
+            "warnings": list(self.warnings),
+            "messages": list(self.messages),
+            "cautions": list(self.cautions),
+            "options": dict(self.options),
+        }
+
+    @classmethod
+    def from_dict(cls, d):
+        from .delay import RefractorProfile
+
+        sides = [SideFit.from_dict(s) for s in d.get("shots", [])]
+        layer_of_branch = [list(s.get("layer_of_branch", [])) for s in d.get("shots", [])]
+        shot_depths = [dict(s, depths_m={int(k): v for k, v in s["depths_m"].items()}) for s in d.get("shot_depths", [])]
+        prof = d.get("delay_time_profile")
+        return cls(
+            layers=[dict(lay) for lay in d["layers"]], sides=sides, layer_of_branch=layer_of_branch,
+            shot_depths=shot_depths, dips=[dict(x) for x in d.get("dips", [])],
+            profile=None if prof is None else RefractorProfile.from_dict(prof),
+            warnings=list(d.get("warnings", [])), messages=list(d.get("messages", [])),
+            cautions=list(d.get("cautions", CAUTIONS)), options=dict(d.get("options", {})),
+        )
+
+
+def _near_shot(fit):
+    """A side whose first pick is within 1.5 spacings of the shot starts with the direct wave."""
+    u = fit.offsets_m
+    if u.size < 2:
+        return False
+    return bool(u[0] <= 1.5 * float(np.median(np.diff(u))) + 1e-9)
+
+
+def _align(velocities, template, anchored):
+    """Map a side's branch velocities to template layers, strictly increasing.
+
+    Minimises the sum of |log(v/V)|; a branch left unmatched costs log(2.5). With
+    ``anchored`` the first branch is layer 1 (a direct wave).
+    Returns a list of 1-based layer indices (0 = unmatched).
+    """
+    n_layers = len(template)
+    logs_t = np.log(template)
+    best, best_cost = None, np.inf
+    unmatched = math.log(2.5)
+    for choice in itertools.product(range(n_layers + 1), repeat=len(velocities)):
+        assigned = [c for c in choice if c > 0]
+        if any(b <= a for a, b in zip(assigned[:-1], assigned[1:])):
+            continue
+        if anchored and choice[0] != 1:
+            continue
+        cost = sum(unmatched if c == 0 else abs(math.log(v) - logs_t[c - 1]) for v, c in zip(velocities, choice))
+        if cost < best_cost - 1e-12:
+            best, best_cost = list(choice), cost
+    return best
+
+
+def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS,
+                   max_branches=MAX_BRANCHES, min_contrast=0.02, through_origin=True,
+                   velocity_disagreement_pct=10.0, delay_times=True, grm=False, grm_xy_m=None):
+    """Interpret a line's picks with the layered methods.
+
+    Parameters
+    ----------
+    picks : Picks
+        First-arrival picks, s; positions in m.
+    terrain : Terrain, optional
+        Ground elevation; used for the refractor elevations of the delay-time profile
+        (default: the picks' geophone elevations).
+    n_branches, breaks_m
+        Branch count and break offsets (m), for all sides or per side
+        (see :func:`tomo.branches.fit_shots`); default: chosen by the BIC.
+    sigma_ms : float
+        Pick sigma (ms) when the picks carry none.
+    max_branches : int
+        Most branches the criterion may choose (1 to 5).
+    min_contrast : float
+        Least fractional velocity increase from one branch to the next.
+    through_origin : bool
+        Hold direct-wave branches through the origin.
+    velocity_disagreement_pct : float
+        Warn when the forward and reverse apparent velocities of a refractor differ by
+        more than this percentage of their mean (default 10 %, common practice: a dip or a
+        lateral velocity change of that size matters to the interpretation).
+    delay_times : bool
+        Compute the plus-minus profile (:func:`tomo.delay.plus_minus`).
+    grm : bool
+        Also compute the GRM profile (:func:`tomo.delay.grm`).
+    grm_xy_m : float, optional
+        GRM XY distance (m); default: the optimum found by the method.
+
+    Returns
+    -------
+    LayeredResult
+    """
+    if picks.time_s is None:
+        raise InputError("picks have no times (a layout file?)", path=picks.path)
+    if len(picks) == 0:
+        raise InputError("no picks", path=picks.path)
+    if not 1 <= max_branches <= MAX_BRANCHES:
+        raise InputError(f"max_branches must be 1 to {MAX_BRANCHES}, got {max_branches}")
+    options = {"n_branches": n_branches if not isinstance(n_branches, dict) else "per side",
+               "breaks_m": breaks_m if not isinstance(breaks_m, dict) else "per side",
+               "sigma_ms": sigma_ms, "pick_sigma_from_file": picks.sigma_s is not None,
+               "max_branches": max_branches, "min_contrast": min_contrast,
+               "through_origin": through_origin,
+               "velocity_disagreement_pct": velocity_disagreement_pct,
+               "delay_times": delay_times, "grm": grm, "grm_xy_m": grm_xy_m}
+    fits = fit_shots(picks, n_branches=n_branches, breaks_m=breaks_m, sigma_ms=sigma_ms,
+                     max_branches=max_branches, through_origin=through_origin, min_contrast=min_contrast)
+    messages = [m for f in fits for m in f.messages if not f.ok]
+    warnings = [m for f in fits for m in f.messages if f.ok]
+    src, src_index = picks.sources()
+    for k, (sx, _) in enumerate(src):
+        off = picks.offset[src_index == k]
+        if off.size and (np.all(off > 0) or np.all(off < 0)):
+            side = "right" if off[0] > 0 else "left"
+            messages.append(f"shot at x = {sx:g} m: all picks on the {side} side (an end or off-end shot; "
+                            f"nothing is reversed at the shot itself)")
+    good = [f for f in fits if f.ok]
+    if not good:
+        raise InputError("no shot side could be fitted: " + (messages[0] if messages else "no picks"), path=picks.path)
+
+    # --- template of line layers from sides that start with the direct wave
+    near = [f for f in good if _near_shot(f)] or good
+    counts = sorted((len(f.branches) for f in near), reverse=True)
+    n_layers = counts[1] if len(counts) > 1 else counts[0]
+    full = [f for f in near if len(f.branches) >= n_layers]
+    template = [float(np.exp(np.median([math.log(f.branches[k].velocity_m_s) for f in full])))
+                for k in range(n_layers)]
+    template = list(np.maximum.accumulate(template))
+    layer_of_branch = []
+    for f in fits:
+        if not f.ok:
+            layer_of_branch.append([])
+            continue
+        anchored = _near_shot(f) and f in near
+        layer_of_branch.append(_align([b.velocity_m_s for b in f.branches], template, anchored))
+    for f, lob in zip(fits, layer_of_branch):
+        if f.ok and 0 in lob:
+            warnings.append(f"{f.label}: branch(es) {', '.join(str(b.index) for b, l in zip(f.branches, lob) if l == 0)} "
+                            f"match no layer of the line and are left out")
+
+    def branch_of(f, lob, k):
+        for b, layer in zip(f.branches, lob):
+            if layer == k:
+                return b
+        return None
+
+    # --- layer 1 velocity from the direct waves
+    v1s = [branch_of(f, lob, 1).velocity_m_s for f, lob in zip(fits, layer_of_branch)
+           if f.ok and branch_of(f, lob, 1) is not None and f.branches[0].intercept_s == 0.0]
+    if not v1s:
+        v1s = [branch_of(f, lob, 1).velocity_m_s for f, lob in zip(fits, layer_of_branch)
+               if f.ok and branch_of(f, lob, 1) is not None]
+    layers = [{"velocity_m_s": float(np.mean(v1s)),
+               "velocity_sigma_m_s": float(np.std(v1s) / math.sqrt(len(v1s))) if len(v1s) > 1 else None,
+               "n_sides": len(v1s), "reversed": None}]
+    v1 = layers[0]["velocity_m_s"]
+
+    # --- refractor velocities from reversed pairs (dipping-layer formula)
+    dips = []
+    pct = float(velocity_disagreement_pct)
+    for k in range(2, n_layers + 1):
+        pair_v, seen = [], []
+        for fa, la in zip(fits, layer_of_branch):
+            if not fa.ok:
+                continue
+            ba = branch_of(fa, la, k)
+            if ba is None:
+                continue
+            seen.append(ba.velocity_m_s)
+            if fa.side != 1:
+                continue
+            cover_a = (fa.shot_x + ba.offset_min_m, fa.shot_x + ba.offset_max_m)
+            for fb, lb in zip(fits, layer_of_branch):
+                if not fb.ok or fb.side != -1 or fb.shot_x <= fa.shot_x:
+                    continue
+                bb = branch_of(fb, lb, k)
+                if bb is None:
+                    continue
+                cover_b = (fb.shot_x - bb.offset_max_m, fb.shot_x - bb.offset_min_m)
+                overlap = min(cover_a[1], cover_b[1]) - max(cover_a[0], cover_b[0])
+                if overlap < 0:
+                    continue
+                a_right, a_left = ba.velocity_m_s, bb.velocity_m_s
+                if not (a_right > v1 and a_left > v1):
+                    continue
+                d = dipping_refractor(v1, a_right, a_left, ba.intercept_s, bb.intercept_s)
+                disagree = abs(a_right - a_left) / (0.5 * (a_right + a_left)) * 100
+                dips.append({
+                    "layer": k, "shot_left_x": fa.shot_x, "shot_right_x": fb.shot_x,
+                    "apparent_velocity_from_left_m_s": a_right, "apparent_velocity_from_right_m_s": a_left,
+                    "velocity_m_s": d["velocity_m_s"],
+                    "dip_deg": d["dip_deg"],  # positive: deepening toward larger x
+                    "disagreement_pct": disagree,
+                    "coverage_overlap_m": overlap,
+                })
+                pair_v.append(d["velocity_m_s"])
+                if disagree > pct:
+                    warnings.append(
+                        f"layer {k}: apparent velocities {a_right:.0f} m/s (shot at {fa.shot_x:g} m) and "
+                        f"{a_left:.0f} m/s (shot at {fb.shot_x:g} m) differ by {disagree:.0f} % (> {pct:g} %): "
+                        f"a dipping or laterally varying refractor; the true velocity {d['velocity_m_s']:.0f} m/s "
+                        f"assumes a plane refractor, dip {d['dip_deg']:.1f} deg")
+        if pair_v:
+            v = float(np.mean(pair_v))
+            sig = float(np.std(pair_v) / math.sqrt(len(pair_v))) if len(pair_v) > 1 else None
+            reversed_ = True
+        elif seen:
+            v = float(1.0 / np.mean(1.0 / np.asarray(seen)))
+            sig = None
+            reversed_ = False
+            warnings.append(f"layer {k} ({v:.0f} m/s) is not reversed: no shot pair records it from both "
+                            f"directions; its velocity is apparent and its dip unknown")
+        else:
+            v, sig, reversed_ = template[k - 1], None, False
+        layers.append({"velocity_m_s": v, "velocity_sigma_m_s": sig, "n_sides": len(seen), "reversed": reversed_})
+    for k in range(1, len(layers)):
+        if layers[k]["velocity_m_s"] <= layers[k - 1]["velocity_m_s"]:
+            warnings.append(f"layer {k + 1} velocity {layers[k]['velocity_m_s']:.0f} m/s is not above layer {k}'s "
+                            f"{layers[k - 1]['velocity_m_s']:.0f} m/s: the layered methods need velocity increasing "
+                            f"with depth; thicknesses below are unreliable")
+    velocities = [lay["velocity_m_s"] for lay in layers]
+
+    # --- thicknesses under each shot from its intercept times
+    shot_depths = []
+    per_layer = [[] for _ in range(n_layers - 1)]
+    for f, lob in zip(fits, layer_of_branch):
+        if not f.ok:
+            continue
+        seen = sorted(set(x for x in lob if x > 1))
+        if not seen:
+            continue
+        vs = [velocities[0]] + [velocities[k - 1] for k in seen]
+        ts = [branch_of(f, lob, k).intercept_s for k in seen]
+        h = intercept_thicknesses(vs, ts)
+        depths, top, prev = {}, 0.0, 1
+        for k, hk in zip(seen, h):
+            top += hk
+            depths[k] = float(top)
+            if k == prev + 1 and math.isfinite(hk):
+                per_layer[k - 2].append(float(hk))
+            prev = k
+        shot_depths.append({"shot_x": f.shot_x, "side": "right" if f.side > 0 else "left", "depths_m": depths})
+    top = 0.0
+    for k in range(n_layers - 1):
+        vals = per_layer[k]
+        if vals:
+            hk = float(np.mean(vals))
+            sig = float(np.std(vals) / math.sqrt(len(vals))) if len(vals) > 1 else None
+        else:
+            hk, sig = float("nan"), None
+            warnings.append(f"layer {k + 1}: no shot side gives its thickness (its top and base are not both seen)")
+        if hk <= 0:
+            warnings.append(f"layer {k + 1}: thickness {hk:.2f} m is not positive: the intercept times are inconsistent")
+        layers[k]["thickness_m"] = hk if math.isfinite(hk) else None
+        layers[k]["thickness_sigma_m"] = sig
+        layers[k]["depth_top_m"] = top
+        top += hk if math.isfinite(hk) else 0.0
+    layers[-1]["thickness_m"] = None
+    layers[-1]["thickness_sigma_m"] = None
+    layers[-1]["depth_top_m"] = top
+
+    # --- the limits of the method, stated plainly
+    spacing = _spacing(picks)
+    for k in range(1, n_layers):
+        hid = hidden_layer_thickness(spacing, velocities[0], velocities[k]) if velocities[k] > velocities[0] else float("nan")
+        if math.isfinite(hid):
+            warnings.append(f"above the top of layer {k + 1}: a layer with a velocity between {velocities[k - 1]:.0f} and "
+                            f"{velocities[k]:.0f} m/s thinner than about {hid:.1f} m would give no first arrivals "
+                            f"(hidden layer, rule of thumb for {spacing:g} m spacing); a slower layer under a faster "
+                            f"one is never seen")
+    if n_layers == 1:
+        warnings.append("one layer only: no refractor within the offsets recorded (the spread sees to about a "
+                        "quarter to a third of its longest offset, common practice)")
+
+    result = LayeredResult(layers=layers, sides=fits, layer_of_branch=layer_of_branch,
+                           shot_depths=shot_depths, dips=dips, warnings=warnings, messages=messages,
+                           options=options)
+    if delay_times and n_layers > 1:
+        from .delay import delay_time_profile
+
+        result.profile = delay_time_profile(picks, result, terrain=terrain, grm=grm, grm_xy_m=grm_xy_m)
+        result.warnings.extend(result.profile.warnings)
+    return result
+
+
+def _spacing(picks):
+    rx = np.unique(np.round(picks.receiver_x, 4))
+    return float(np.median(np.diff(rx))) if rx.size > 1 else 1.0
+
+
+# --- starting model --------------------------------------------------------------
+
+def interface_depths(result, x):
+    """Depth (m, below ground) of the top of each layer 2..n at distances ``x`` (m).
+
+    The delay-time refractor where the profile covers ``x``, the intercept-time depths
+    under the shots (linear between shots, constant beyond) elsewhere, the line-wide
+    table where neither exists. Returns an array (n_layers - 1, x.size),
+    non-decreasing downward.
+    """
+    x = np.atleast_1d(np.asarray(x, float))
+    n = len(result.layers)
+    out = np.empty((n - 1, x.size))
+    for k in range(2, n + 1):
+        default = result.layers[k - 1]["depth_top_m"]
+        pts = {}
+        for s in result.shot_depths:
+            if k in s["depths_m"] and math.isfinite(s["depths_m"][k]):
+                pts.setdefault(round(s["shot_x"], 4), []).append(s["depths_m"][k])
+        if pts:
+            xs = np.array(sorted(pts))
+            ds = np.array([np.mean(pts[v]) for v in xs])
+            d = np.interp(x, xs, ds)
+        else:
+            d = np.full(x.size, default)
+        prof = result.profile
+        if prof is not None:
+            px, pd = prof.refractor_depths(k - 1)
+            if px.size >= 2:
+                inside = (x >= px.min()) & (x <= px.max())
+                d = np.where(inside, np.interp(x, px, pd), d)
+            elif px.size == 1:
+                d = np.where(np.abs(x - px[0]) < 1e-9, pd[0], d)
+        out[k - 2] = d
+    out = np.maximum.accumulate(np.maximum(out, 0.0), axis=0) if n > 1 else out
+    return out
+
+
+def starting_model(result, mesh):
+    """A velocity grid (m/s) on ``mesh`` from a layered interpretation.
+
+    Layer velocities of the line table; layer tops from the delay-time refractor where
+    known and from the intercept-time depths elsewhere (:func:`interface_depths`).
+    Depths are below the ground of the mesh's terrain.
+
+    Returns
+    -------
+    ndarray, shape (mesh.nz, mesh.nx)
+        Velocity, m/s; NaN in the air.
+    """
+    v = np.array([lay["velocity_m_s"] for lay in result.layers], float)
+    depth = mesh.depth
+    out = np.full(mesh.shape, v[0])
+    if v.size > 1:
+        tops = interface_depths(result, mesh.x)  # (n-1, nx)
+        for k in range(1, v.size):
+            out = np.where(depth >= tops[k - 1][None, :], v[k], out)
+    out[~mesh.ground] = np.nan
+    return out
