@@ -1,0 +1,115 @@
+"""Starting models for the tomography.
+
+Two choices:
+
+- :func:`gradient_start` fits a 1-D velocity-depth gradient v = v0 + k depth to all
+  first arrivals, using the closed-form time in a constant-gradient medium with source
+  and receiver on the surface, t = (2/k) asinh(k x / (2 v0)) (Slotnick 1959, Lessons in
+  Seismic Computing, SEG; restated by Fomel, Luo & Zhao 2009, J. Comput. Phys. 228).
+  With terrain, x is the straight-line shot-geophone distance (an approximation).
+- :func:`layered_start` runs the layered interpretation (``tomo.layered``) and paints
+  its layers onto the mesh. The layered methods assume that velocity increases with
+  depth; a hidden layer or a velocity inversion is carried into the start.
+
+Both are only starting points: the tomography changes them where the rays demand.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from .errors import InputError
+
+__all__ = ["fit_gradient", "gradient_start", "layered_start", "gradient_time"]
+
+
+def gradient_time(distance, v0, k):
+    """First-arrival time (s) at ``distance`` (m) on the surface of v = v0 + k depth.
+
+    t = (2/k) asinh(k x / (2 v0)) (Slotnick 1959); t = x / v0 in the limit k -> 0.
+    """
+    x = np.asarray(distance, float)
+    if k < 1e-9:
+        return x / v0
+    return (2.0 / k) * np.arcsinh(k * x / (2.0 * v0))
+
+
+def fit_gradient(picks):
+    """Fit v0 (m/s) and k (1/s) of v = v0 + k depth to the first arrivals.
+
+    Least squares on the times, weighted by the pick uncertainties when given, with a
+    soft-L1 loss so that a few bad picks do not pull the fit (scipy.optimize.least_squares).
+
+    Returns
+    -------
+    dict
+        ``v0_m_s``, ``k_per_s``, ``rms_ms`` (RMS misfit of the fit) and
+        ``turning_depth_m`` (deepest ray turning point, at the longest distance).
+    """
+    if picks.time_s is None or len(picks) < 3:
+        raise InputError("a gradient start needs at least 3 picks with times", path=picks.path)
+    x = np.hypot(picks.receiver_x - picks.source_x, picks.receiver_z - picks.source_z)
+    t = np.asarray(picks.time_s, float)
+    sigma = np.full(t.shape, 1e-3) if picks.sigma_s is None else np.asarray(picks.sigma_s, float)
+    near = x <= np.quantile(x, 0.2)
+    v0_guess = float(np.median(x[near] / t[near]))
+    far = x >= np.quantile(x, 0.8)
+    v_app = float(np.median(x[far] / t[far]))
+    # a gradient k makes the apparent velocity at x about v0 + k x / 2 (small k x / v0)
+    k_guess = max(2.0 * (v_app - v0_guess) / max(float(x[far].mean()), 1e-6), 0.1)
+
+    def residual(q):
+        v0, k = np.exp(q)
+        return (gradient_time(x, v0, k) - t) / sigma
+
+    fit = least_squares(residual, np.log([v0_guess, k_guess]), loss="soft_l1", f_scale=2.0,
+                        bounds=(np.log([10.0, 1e-4]), np.log([2e4, 1e4])))
+    v0, k = (float(v) for v in np.exp(fit.x))
+    rms = float(np.sqrt(np.mean((gradient_time(x, v0, k) - t) ** 2)) * 1e3)
+    xmax = float(x.max())
+    # turning depth of the ray at xmax: circle centre v0/k above the surface
+    turning = (v0 / k) * (np.sqrt(1.0 + (k * xmax / (2.0 * v0)) ** 2) - 1.0)
+    return {"v0_m_s": v0, "k_per_s": k, "rms_ms": rms, "turning_depth_m": float(turning)}
+
+
+def gradient_start(picks, mesh, return_fit=False):
+    """Starting model v = v0 + k depth (m/s) on the mesh cells, NaN in the air.
+
+    Parameters
+    ----------
+    picks : Picks
+    mesh : Mesh
+    return_fit : bool
+        Also return the fit (see :func:`fit_gradient`).
+
+    Returns
+    -------
+    ndarray (nz, nx), or (ndarray, dict)
+    """
+    fit = fit_gradient(picks)
+    v = fit["v0_m_s"] + fit["k_per_s"] * np.maximum(mesh.depth, 0.0)
+    v = np.where(mesh.ground, v, np.nan)
+    return (v, fit) if return_fit else v
+
+
+def layered_start(picks, mesh, terrain=None):
+    """Starting model from the layered interpretation, m/s on the mesh (NaN in air).
+
+    Calls ``tomo.layered.interpret_line(picks, terrain)`` and
+    ``tomo.layered.starting_model(result, mesh)``. Returns the velocity array and the
+    interpretation as a dict (stored in the run file).
+    """
+    try:
+        from . import layered
+    except ImportError as exc:  # the layered stage is missing from this installation
+        raise InputError(f"the layered start is not available ({exc}); use the gradient start") from None
+    result = layered.interpret_line(picks, terrain=terrain)
+    v = np.asarray(layered.starting_model(result, mesh), float)
+    if v.shape != mesh.shape:
+        raise InputError(f"layered starting model has shape {v.shape}, expected {mesh.shape}")
+    v = np.where(mesh.ground, v, np.nan)
+    if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):
+        raise InputError("the layered interpretation gave no usable velocity for every ground cell; "
+                         "use the gradient start")
+    return v, result.to_dict()
