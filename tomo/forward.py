@@ -58,16 +58,22 @@ def _bilinear(grid_x0, grid_z0, h, values, x, z):
 
 
 def source_slowness(mesh, slowness, x, z):
-    """Slowness (s/m) at a point, from the active nodes around it."""
-    s = np.where(mesh.node_active, slowness, np.nan)
-    value = _bilinear(mesh.x0, mesh.z_top, mesh.h, s, x, z)
+    """Slowness (s/m) at a point, bilinear over the active nodes around it."""
+    ny, nx = mesh.node_shape
+    i = int(np.clip(np.floor((mesh.z_top - z) / mesh.h), 0, ny - 2))
+    j = int(np.clip(np.floor((x - mesh.x0) / mesh.h), 0, nx - 2))
+    block = np.where(mesh.node_active[i:i + 2, j:j + 2], slowness[i:i + 2, j:j + 2], np.nan)
+    value = _bilinear(mesh.node_x[j], mesh.node_z[i], mesh.h, block, x, z)
     if not np.isfinite(value):
-        # a point next to masked nodes: use the mean of the finite stencil values
-        i = int(np.clip(np.floor((mesh.z_top - z) / mesh.h), 0, s.shape[0] - 2))
-        j = int(np.clip(np.floor((x - mesh.x0) / mesh.h), 0, s.shape[1] - 2))
-        block = s[i:i + 2, j:j + 2]
+        # a point next to masked nodes: the mean of the active stencil values
         value = np.nanmean(block) if np.any(np.isfinite(block)) else np.nan
     return float(value)
+
+
+def node_speed(mesh, slowness):
+    """Speed (m/s) on the forward nodes for skfmm, 1 on inactive nodes (never used)."""
+    active = mesh.node_active
+    return np.where(active, 1.0 / np.where(active, slowness, 1.0), 1.0)
 
 
 @dataclass
@@ -82,7 +88,7 @@ class FieldResult:
     radius: float
 
 
-def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADIUS):
+def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADIUS, speed=None):
     """Travel times (s) from a point source at (``x``, ``z``) m to every forward node.
 
     Parameters
@@ -98,6 +104,8 @@ def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADI
         Largest radius of the exactly-timed start, in node spacings (0 gives a point
         start). The circle is shrunk to stay inside a neighbourhood whose slowness is
         within ``SOURCE_UNIFORMITY`` of the source's, but not below one node spacing.
+    speed : ndarray, optional
+        ``node_speed(mesh, slowness)``, when solving many sources in one model.
 
     Returns
     -------
@@ -134,7 +142,8 @@ def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADI
         r_eff = dist[nearest] + eps
         local = dist - r_eff
     phi[i0:i1, j0:j1] = local
-    speed = np.where(active, 1.0 / np.where(active, slowness, 1.0), 1.0)
+    if speed is None:
+        speed = node_speed(mesh, slowness)
     phi_m = np.ma.MaskedArray(phi, mask=~active)
     fallback = False
     try:
@@ -144,12 +153,12 @@ def solve_field(mesh, slowness, x, z, order=2, source_radius=DEFAULT_SOURCE_RADI
             raise SolverError(f"fast marching failed for the source at x = {x:g} m: {exc}") from None
         t = skfmm.travel_time(phi_m, speed, dx=h, order=1)
         order, fallback = 1, True
-    time = np.ma.filled(t, np.nan).astype(float)
+    # masked (air and unreached) nodes become NaN
+    time = np.ma.filled(t.astype(float), np.nan)
     time += r_eff * s0
-    inner = local <= 0
+    inner = (local <= 0) & active[i0:i1, j0:j1]
     block = time[i0:i1, j0:j1]
     block[inner] = dist[inner] * s0
-    time[~active] = np.nan
     return FieldResult(time, order, fallback, (float(x), float(z)), s0, r_eff)
 
 
@@ -188,9 +197,15 @@ class ForwardResult:
     fallbacks: list = field(default_factory=list)
 
 
+# Shared read-only state of one travel_times call: forked workers inherit it, so each
+# task carries only its source and targets instead of pickled grids.
+_SHARED = {}
+
+
 def _solve_group(args):
-    mesh, slowness, origin, targets, order, radius = args
-    f = solve_field(mesh, slowness, origin[0], origin[1], order=order, source_radius=radius)
+    origin, targets = args
+    mesh, slowness, speed, order, radius = _SHARED["forward"]
+    f = solve_field(mesh, slowness, origin[0], origin[1], order=order, source_radius=radius, speed=speed)
     return sample_field(mesh, f, targets[:, 0], targets[:, 1]), f.fallback
 
 
@@ -229,15 +244,19 @@ def travel_times(mesh, slowness, picks, order=2, source_radius=DEFAULT_SOURCE_RA
         k = int(np.flatnonzero(bad)[0])
         raise InputError(f"station at x = {targets_xz[k, 0]:g} m, z = {targets_xz[k, 1]:g} m is outside the ground of the mesh")
     groups = [np.flatnonzero(origin_index == k) for k in range(len(origins))]
-    tasks = [(mesh, slowness, origins[k], targets_xz[g], order, source_radius) for k, g in enumerate(groups)]
+    _SHARED["forward"] = (mesh, slowness, node_speed(mesh, slowness), order, source_radius)
+    tasks = [(origins[k], targets_xz[g]) for k, g in enumerate(groups)]
     out = np.empty(len(picks))
     fallbacks = []
-    for k, (times, fell) in enumerate(_map(_solve_group, tasks, workers)):
-        out[groups[k]] = times
-        if fell:
-            fallbacks.append(tuple(origins[k]))
-        if progress is not None:
-            progress(k + 1, len(tasks))
+    try:
+        for k, (times, fell) in enumerate(_map(_solve_group, tasks, workers)):
+            out[groups[k]] = times
+            if fell:
+                fallbacks.append(tuple(float(v) for v in origins[k]))
+            if progress is not None:
+                progress(k + 1, len(tasks))
+    finally:
+        _SHARED.pop("forward", None)
     if not np.all(np.isfinite(out)):
         raise SolverError("some stations were not reached by the wavefront (isolated by the air mask?)")
     return ForwardResult(out, len(tasks), reciprocal, fallbacks)
