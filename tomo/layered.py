@@ -493,15 +493,21 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
             top += hk
             depths[k] = float(top)
             if k == prev + 1 and math.isfinite(hk):
-                per_layer[k - 2].append(float(hk))
+                # weight by the intercept's variance: a short branch has a poor intercept
+                b = branch_of(f, lob, k)
+                sig_h = b.intercept_sigma_s / (2 * _cos_term(velocities[k - 2], velocities[k - 1]))
+                weight = 1.0 / sig_h**2 if math.isfinite(sig_h) and sig_h > 0 else 1.0
+                per_layer[k - 2].append((float(hk), weight))
             prev = k
         shot_depths.append({"shot_x": f.shot_x, "side": "right" if f.side > 0 else "left", "depths_m": depths})
     top = 0.0
     for k in range(n_layers - 1):
         vals = per_layer[k]
         if vals:
-            hk = float(np.mean(vals))
-            sig = float(np.std(vals) / math.sqrt(len(vals))) if len(vals) > 1 else None
+            hs = np.array([v for v, _ in vals])
+            ws = np.array([w for _, w in vals])
+            hk = float(np.sum(ws * hs) / np.sum(ws))
+            sig = float(np.sqrt(np.sum(ws * (hs - hk) ** 2) / np.sum(ws) / len(hs))) if len(hs) > 1 else None
         else:
             hk, sig = float("nan"), None
             warnings.append(f"layer {k + 1}: no shot side gives its thickness (its top and base are not both seen)")
