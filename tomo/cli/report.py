@@ -1,12 +1,27 @@
-"""`tomo report`: not built yet."""
+"""`tomo report`: one self-contained HTML report of a run file."""
 
-from ..errors import TomoError
+from __future__ import annotations
+
+from . import note
 
 
 def register(sub):
-    p = sub.add_parser("report", help="(not built yet)")
+    p = sub.add_parser(
+        "report", help="write a self-contained HTML report of a run file",
+        description="Write one HTML file (figures embedded) with the input summary, pick QC, "
+                    "settings, layered table, final misfit, figures and interpretation cautions.",
+    )
+    p.add_argument("run_file", metavar="RUN.h5", help="run file written by 'tomo invert'")
+    p.add_argument("--out", required=True, metavar="REPORT.html", help="HTML file to write")
     p.set_defaults(run=run)
 
 
 def run(args):
-    raise TomoError("'tomo report' is not built yet")
+    from ..report import write_report
+    from ..runfile import read_run
+
+    run_data = read_run(args.run_file)
+    path = write_report(args.out, run_data, source=args.run_file, skip_note=note)
+    size_kb = path.stat().st_size / 1024
+    print(f"wrote the report to {path} ({size_kb:.0f} kB)")
+    return 0

@@ -1,0 +1,105 @@
+"""Every figure of a run, made and saved in one go (the ``tomo plot`` job)."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import shutil
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..errors import InputError
+from . import compare, fit, section, style
+
+__all__ = ["FIGURES", "FigureSpec", "make_figures", "plot_run"]
+
+
+@dataclass(frozen=True)
+class FigureSpec:
+    """One kind of run figure: file stem, caption and the function that draws it."""
+
+    name: str
+    caption: str
+    draw: object
+
+
+FIGURES = (
+    FigureSpec("velocity", "Velocity section over the terrain. Pale grey: no ray reaches these cells; "
+               "dashed line: depth of investigation (deepest ray).", section.velocity_section),
+    FigureSpec("coverage", "Ray coverage: ray length per cell; zero-coverage cells blank.", section.coverage_section),
+    FigureSpec("traveltimes", "Observed picks and times computed in the final model, every shot.", fit.traveltime_fit),
+    FigureSpec("residuals", "Residuals against offset and their distribution beside the pick uncertainty.",
+               fit.residual_figure),
+    FigureSpec("misfit", "Misfit history: chi-squared, RMS residual and regularisation weight per iteration.",
+               fit.misfit_history),
+    FigureSpec("compare", "Layered against gridded: the delay-time refractor with its uncertainty, the "
+               "chosen iso-velocity contour, and their difference along the line.", compare.layered_vs_gridded),
+)
+
+
+def make_figures(run, skip_note=None):
+    """Draw every run figure.
+
+    Returns a list of (FigureSpec, Figure) for the figures that apply; a figure whose
+    data the run lacks (the layered comparison without a layered result) is skipped
+    and ``skip_note(message)`` is called if given.
+    """
+    out = []
+    for spec in FIGURES:
+        fig = spec.draw(run)
+        if fig is None:
+            if skip_note:
+                skip_note(f"skipped the '{spec.name}' figure: the run file holds no layered refractor profile")
+            continue
+        out.append((spec, fig))
+    return out
+
+
+def prepare_folder(out_dir):
+    """Create ``out_dir`` if needed and check it is writable; InputError otherwise."""
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError("exists and is not a folder", path=out_dir)
+    try:
+        out_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the output folder ({exc.strerror})", path=out_dir) from None
+    if not os.access(out_dir, os.W_OK | os.X_OK):
+        raise InputError("output folder is not writable", path=out_dir)
+    return out_dir
+
+
+def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None):
+    """Save every run figure into ``out_dir`` as ``<name>.<format>``.
+
+    The figures are first written into a temporary folder inside ``out_dir`` and moved
+    into place only when all of them are done, so a failure leaves no partial set.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    out_dir = prepare_folder(out_dir)
+    figures = make_figures(run, skip_note)
+    tmp = Path(tempfile.mkdtemp(prefix=".tomo-plot.", dir=out_dir))
+    written = []
+    try:
+        staged = []
+        for spec, fig in figures:
+            for fmt in formats:
+                fig.savefig(tmp / f"{spec.name}.{fmt}", format=fmt, bbox_inches="tight")
+                staged.append(f"{spec.name}.{fmt}")
+            style.plt.close(fig)
+            if progress:
+                progress(spec.name)
+        for name in staged:
+            os.replace(tmp / name, out_dir / name)
+            written.append(out_dir / name)
+    finally:
+        for _, fig in figures:
+            style.plt.close(fig)
+        with contextlib.suppress(OSError):
+            shutil.rmtree(tmp)
+    return written

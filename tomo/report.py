@@ -1,0 +1,316 @@
+"""A run's report: one self-contained HTML file (figures embedded as base64 PNG).
+
+Sections: input summary, pick QC (reciprocal times, residual outliers, the layered
+interpretation's warnings), settings, the layered table, the final misfit, every run
+figure, and the interpretation cautions. Plain HTML and CSS, no scripts, no external
+files, so it opens anywhere and prints on A4.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+import json
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .fileio import atomic_open
+
+__all__ = ["CAUTIONS", "reciprocal_pairs", "build_report", "write_report"]
+
+#: Shown in every report; people act on these numbers.
+CAUTIONS = (
+    ("Non-uniqueness",
+     "Many velocity models explain the same picks equally well. The tomogram is one smooth model "
+     "that fits the picks to their uncertainty; sharp boundaries come out smeared, and features "
+     "smaller than about the geophone spacing, or below the depth of investigation, are not resolved. "
+     "Cells that no ray reaches show the starting model, not the ground."),
+    ("Hidden layers and velocity inversions",
+     "The layered methods assume velocity increases with depth. A layer that is thin or only slightly "
+     "faster than the one above gives no first arrivals of its own (a hidden layer); a slower layer "
+     "beneath a faster one gives none at all (a velocity inversion), and depths below it come out "
+     "too deep. First-arrival tomography shares these blind spots."),
+    ("Velocity is not rock type or rippability",
+     "Velocity ranges of soils and rocks overlap widely: a velocity does not identify a material, its "
+     "strength or whether it can be ripped or excavated. Read velocities as one piece of evidence."),
+    ("Calibrate with boreholes",
+     "Tie the interpreted surfaces to boreholes, trial pits or probes on the line before using "
+     "depths; without calibration the depths are estimates with the uncertainty shown, at best."),
+    ("Professional review",
+     "This report is a geophysical interpretation, not a design. Any design that relies on it (a "
+     "retaining wall, a foundation, an excavation) needs review by a licensed professional under the "
+     "local codes."),
+)
+
+_CSS = """
+body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; color: #1d2430;
+       max-width: 48em; margin: 2em auto; padding: 0 1em; line-height: 1.45; font-size: 15px; }
+h1 { font-size: 1.55em; margin-bottom: 0.1em; }
+h2 { font-size: 1.2em; border-bottom: 2px solid #0072B2; padding-bottom: 0.15em; margin-top: 1.8em; }
+h3 { font-size: 1.0em; margin-bottom: 0.3em; }
+.meta { color: #555; font-size: 0.9em; }
+table { border-collapse: collapse; margin: 0.6em 0 1em 0; font-size: 0.9em; }
+th, td { border-bottom: 1px solid #ccd; padding: 0.2em 0.7em; text-align: left; vertical-align: top; }
+th { background: #eef2f7; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; }
+.flag { color: #a33d00; font-weight: bold; }
+.box { border-left: 5px solid #D55E00; background: #fdf3ec; padding: 0.5em 1em; margin: 1em 0; }
+figure { margin: 1.2em 0; page-break-inside: avoid; break-inside: avoid; }
+figure img { width: 100%; height: auto; border: 1px solid #dde; }
+figcaption { font-size: 0.88em; color: #333; margin-top: 0.3em; }
+.note { color: #555; font-style: italic; }
+code { font-size: 0.92em; }
+@media print { body { max-width: none; margin: 0; font-size: 11pt; } h2 { page-break-after: avoid; } }
+"""
+
+
+def _esc(value):
+    return html.escape(str(value), quote=True)
+
+
+def _table(header, rows, numeric=()):
+    out = ["<table>"]
+    if any(header):
+        out.append("<tr>" + "".join(f"<th>{_esc(h)}</th>" for h in header) + "</tr>")
+    for row in rows:
+        cells = []
+        for k, value in enumerate(row):
+            cls = ' class="num"' if k in numeric else ""
+            cells.append(f"<td{cls}>{value if isinstance(value, _Raw) else _esc(value)}</td>")
+        out.append("<tr>" + "".join(cells) + "</tr>")
+    out.append("</table>")
+    return "\n".join(out)
+
+
+class _Raw(str):
+    """HTML that is already escaped."""
+
+
+def reciprocal_pairs(run, tolerance_ms=None, tolerance_frac=0.02, position_tol_m=0.05):
+    """Reciprocal picks: the time from A to B against the time from B to A.
+
+    A pair exists where a shot at A was recorded at a geophone at (or within
+    ``position_tol_m`` of) shot B's position and the reverse. The tolerance defaults to
+    the larger of 1 ms (or twice the pick sigma) and 2 % of the time; reciprocal times
+    should agree within about 1-2 ms or a few per cent (common practice).
+
+    Returns a list of dicts ``a_x, b_x, t_ab_ms, t_ba_ms, diff_ms, limit_ms, flagged``.
+    """
+    p = run.picks
+    sx, rx, t = p["source_x"], p["receiver_x"], p["observed_ms"]
+    sigma = np.asarray(p["sigma_ms"], float)
+    shots = np.unique(np.round(sx, 3))
+    pairs = []
+    for i, a in enumerate(shots):
+        for b in shots[i + 1:]:
+            ab = np.flatnonzero((np.abs(sx - a) < position_tol_m) & (np.abs(rx - b) < position_tol_m))
+            ba = np.flatnonzero((np.abs(sx - b) < position_tol_m) & (np.abs(rx - a) < position_tol_m))
+            if ab.size and ba.size:
+                t1, t2 = float(t[ab[0]]), float(t[ba[0]])
+                s = np.nanmax([sigma[ab[0]], sigma[ba[0]], 0.0])
+                base = tolerance_ms if tolerance_ms is not None else max(1.0, 2.0 * s)
+                limit = max(base, tolerance_frac * max(t1, t2))
+                pairs.append({"a_x": float(a), "b_x": float(b), "t_ab_ms": t1, "t_ba_ms": t2,
+                              "diff_ms": t1 - t2, "limit_ms": limit, "flagged": abs(t1 - t2) > limit})
+    return pairs
+
+
+def _figure_png(fig, dpi=130):
+    from .figures import style
+
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
+    style.plt.close(fig)
+    return base64.b64encode(buffer.getvalue()).decode("ascii")
+
+
+def _input_summary(run):
+    p = run.picks
+    shots = np.unique(np.round(p["source_x"], 3))
+    geos = np.unique(np.round(p["receiver_x"], 3))
+    spacing = float(np.median(np.diff(geos))) if geos.size > 1 else float("nan")
+    sigma = np.asarray(p["sigma_ms"], float)
+    offset = np.abs(p["receiver_x"] - p["source_x"])
+    rows = [
+        ("Picks", f"{p['observed_ms'].size}"),
+        ("Shots", f"{shots.size} (x = {shots.min():g} to {shots.max():g} m)"),
+        ("Geophones", f"{geos.size} (x = {geos.min():g} to {geos.max():g} m, median spacing {spacing:g} m)"),
+        ("Offsets", f"{offset.min():.1f} to {offset.max():.1f} m"),
+        ("First-arrival times", f"{np.min(p['observed_ms']):.2f} to {np.max(p['observed_ms']):.2f} ms"),
+        ("Pick uncertainty (sigma)", f"{np.nanmin(sigma):.2g} to {np.nanmax(sigma):.2g} ms"
+         if np.any(np.isfinite(sigma)) else "not given"),
+        ("Ground elevation", f"{np.min(run.terrain_z):.1f} to {np.max(run.terrain_z):.1f} m "
+                             f"({len(run.terrain_x)} terrain points)"),
+        ("Model grid", _mesh_text(run)),
+    ]
+    return _table(["", ""], rows)
+
+
+def _mesh_text(run):
+    nz, nx = run.velocity.shape
+    cell = abs(run.x[1] - run.x[0]) if run.x.size > 1 else float("nan")
+    return (f"{nx} x {nz} cells of {cell:g} m, x {run.x[0] - cell / 2:g} to {run.x[-1] + cell / 2:g} m, "
+            f"elevation {run.z[-1] - cell / 2:g} to {run.z[0] + cell / 2:g} m")
+
+
+def _qc_section(run):
+    parts = []
+    pairs = reciprocal_pairs(run)
+    if pairs:
+        flagged = sum(p["flagged"] for p in pairs)
+        parts.append(f"<p>{len(pairs)} reciprocal pair(s); {flagged} differ by more than the tolerance "
+                     "(the larger of 1 ms or twice the pick sigma, and 2 % of the time; common practice).</p>")
+        rows = []
+        for p in pairs:
+            mark = _Raw('<span class="flag">check</span>') if p["flagged"] else "ok"
+            rows.append((f"{p['a_x']:g}", f"{p['b_x']:g}", f"{p['t_ab_ms']:.2f}", f"{p['t_ba_ms']:.2f}",
+                         f"{p['diff_ms']:+.2f}", f"{p['limit_ms']:.2f}", mark))
+        parts.append(_table(["shot A x (m)", "shot B x (m)", "A to B (ms)", "B to A (ms)", "difference (ms)",
+                             "tolerance (ms)", ""], rows, numeric=(0, 1, 2, 3, 4, 5)))
+    else:
+        parts.append('<p class="note">No reciprocal pairs: no shot was recorded at another shot\'s position.</p>')
+    r = run.residual_ms
+    sigma = np.asarray(run.picks["sigma_ms"], float)
+    out = np.flatnonzero(np.abs(r) > 3 * sigma)
+    parts.append(f"<p>Residuals beyond three pick sigmas in the final model: {out.size} of {r.size}.</p>")
+    if out.size:
+        rows = [(f"{run.picks['source_x'][k]:g}", f"{run.picks['receiver_x'][k]:g}",
+                 f"{run.picks['observed_ms'][k]:.2f}", f"{run.picks['computed_ms'][k]:.2f}", f"{r[k]:+.2f}")
+                for k in out[np.argsort(-np.abs(r[out]))][:20]]
+        parts.append(_table(["shot x (m)", "geophone x (m)", "observed (ms)", "computed (ms)", "residual (ms)"],
+                            rows, numeric=(0, 1, 2, 3, 4)))
+        if out.size > 20:
+            parts.append(f'<p class="note">(largest 20 of {out.size} shown)</p>')
+    warnings = (run.layered or {}).get("warnings") or []
+    if warnings:
+        parts.append("<h3>Warnings from the layered interpretation</h3><ul>"
+                     + "".join(f"<li>{_esc(w if isinstance(w, str) else json.dumps(w))}</li>" for w in warnings)
+                     + "</ul>")
+    return "\n".join(parts)
+
+
+def _settings_section(run):
+    rows = [(k, json.dumps(v) if not isinstance(v, str) else v) for k, v in sorted(run.settings.items())]
+    text = _table(["setting", "value"], rows) if rows else '<p class="note">No settings recorded.</p>'
+    return text
+
+
+def _layered_section(run):
+    from .figures.compare import compare_table, layer_velocities
+
+    if not run.layered:
+        return '<p class="note">This run file holds no layered interpretation; the table and the comparison figure are left out.</p>'
+    layers = run.layered.get("layers") or []
+    rows = []
+    top = 0.0
+    for k, layer in enumerate(layers, start=1):
+        thick = layer.get("thickness_m")
+        v = layer.get("velocity_m_s")
+        depth_text = f"{top:.1f} to {top + thick:.1f}" if thick is not None else f"below {top:.1f}"
+        rows.append((str(k), f"{v:.0f}" if v is not None else "-", f"{thick:.1f}" if thick is not None else "-",
+                     depth_text))
+        if thick is not None:
+            top += thick
+    parts = ["<p>Velocities assumed to increase with depth. Thicknesses and depths are for the line as a whole "
+             "(intercept-time method); the delay-time refractor below varies along the line.</p>",
+             _table(["layer", "velocity (m/s)", "thickness (m)", "depth range (m)"], rows, numeric=(0, 1, 2))]
+    table = compare_table(run)
+    if table is not None:
+        ok = table["constrained"] & np.isfinite(table["difference_m"])
+        prof = table["profile"]
+        text = (f"<p>Delay-time refractor {table['refractor']}: depth {np.nanmin(prof['depth_m']):.1f} to "
+                f"{np.nanmax(prof['depth_m']):.1f} m below ground at {prof['x'].size} geophones. "
+                f"The tomogram's {table['contour_m_s']:.0f} m/s contour (the mean of the layer velocities "
+                f"above and below) ")
+        if ok.any():
+            d = table["difference_m"][ok]
+            text += (f"lies on average {np.mean(d):+.2f} m from it (RMS {np.sqrt(np.mean(d ** 2)):.2f} m) at "
+                     f"{ok.sum()} geophones where rays reach it.</p>")
+        else:
+            text += "is not reached by rays under the geophones.</p>"
+        parts.append(text)
+    elif len(layer_velocities(run.layered)) >= 2:
+        parts.append('<p class="note">The layered result holds no delay-time refractor profile to compare.</p>')
+    return "\n".join(parts)
+
+
+def _misfit_section(run):
+    chi2 = np.asarray(run.history.get("chi2", []), float)
+    rms = np.asarray(run.history.get("rms_ms", []), float)
+    lam = np.asarray(run.history.get("lambda", []), float)
+    parts = [f"<p>Final chi-squared <b>{run.chi2:.2f}</b> (target 1: the picks explained to their uncertainty), "
+             f"RMS residual <b>{run.rms_ms:.2f} ms</b> after {run.iterations} iteration(s); "
+             f"{'converged' if run.converged else 'not converged'}: {_esc(run.stop_reason or 'no reason recorded')}.</p>"]
+    rows = []
+    for k in range(chi2.size):
+        rows.append((str(k), f"{chi2[k]:.3g}", f"{rms[k]:.3f}" if k < rms.size else "-",
+                     f"{lam[k]:.3g}" if k < lam.size and np.isfinite(lam[k]) else "-"))
+    if rows:
+        parts.append(_table(["iteration", "chi-squared", "RMS (ms)", "regularisation weight"], rows,
+                            numeric=(0, 1, 2, 3)))
+    return "\n".join(parts)
+
+
+def build_report(run, source=None, skip_note=None):
+    """The report HTML for a run (a str). ``source`` names the run file in the heading."""
+    from .figures.bundle import make_figures
+
+    created = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+    title = "Seismic refraction interpretation"
+    figs = make_figures(run, skip_note)
+    fig_html = []
+    for number, (spec, fig) in enumerate(figs, start=1):
+        data = _figure_png(fig)
+        fig_html.append(f'<figure id="fig-{spec.name}"><img alt="{_esc(spec.caption)}" '
+                        f'src="data:image/png;base64,{data}"><figcaption><b>Figure {number}.</b> '
+                        f"{_esc(spec.caption)}</figcaption></figure>")
+    if not any(spec.name == "compare" for spec, _ in figs):
+        fig_html.append('<p class="note">The layered against gridded comparison is left out: this run file holds '
+                        "no layered refractor profile.</p>")
+    cautions = "".join(f"<li><b>{_esc(head)}.</b> {_esc(text)}</li>" for head, text in CAUTIONS)
+    notes = "".join(f"<li>{_esc(n)}</li>" for n in run.notes)
+    body = f"""<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>{_esc(title)}{f' - {_esc(Path(source).name)}' if source else ''}</title>
+<style>{_CSS}</style></head>
+<body>
+<h1>{_esc(title)}</h1>
+<p class="meta">Run file {_esc(source or '(in memory)')}, made {_esc(run.created or '?')} by tomo {_esc(run.tomo_version)};
+report made {created} by tomo {__version__}.</p>
+<div class="box"><b>Read the cautions at the end before using these results.</b> The section is one of many
+models that fit the picks; depths need calibration against boreholes, and designs need review by a licensed
+professional under the local codes.</div>
+<h2 id="inputs">1. Input summary</h2>
+{_input_summary(run)}
+<h2 id="qc">2. Pick quality</h2>
+{_qc_section(run)}
+<h2 id="settings">3. Settings</h2>
+{_settings_section(run)}
+<h2 id="layered">4. Layered interpretation</h2>
+{_layered_section(run)}
+<h2 id="misfit">5. Final misfit</h2>
+{_misfit_section(run)}
+<h2 id="figures">6. Figures</h2>
+{''.join(fig_html)}
+<h2 id="cautions">7. Interpretation cautions</h2>
+<ul>{cautions}</ul>
+{f'<h2 id="notes">Notes from the run</h2><ul>{notes}</ul>' if notes else ''}
+</body></html>
+"""
+    return body
+
+
+def write_report(path, run, source=None, skip_note=None):
+    """Build the report and write it atomically to ``path``; returns the path."""
+    from .export import check_output_path
+
+    check_output_path(path)
+    text = build_report(run, source=source, skip_note=skip_note)
+    with atomic_open(path, "w", encoding="utf-8") as f:
+        f.write(text)
+    return Path(path)
