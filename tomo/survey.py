@@ -291,6 +291,16 @@ def read_picks(path, terrain=None, layout=False):
             raise InputError(f"sigma must be positive, got {s[k]:g} ms", path=path, line=lines[k], field="sigma_ms")
 
     sx, rx = data["source_x"], data["receiver_x"]
+    if terrain is not None:
+        # report the first line in the file with a station off the terrain
+        outside = ~terrain.covers(sx) | ~terrain.covers(rx)
+        if np.any(outside):
+            k = int(np.flatnonzero(outside)[0])
+            role, x = ("source", sx[k]) if not terrain.covers(sx[k]) else ("receiver", rx[k])
+            raise InputError(
+                f"{role} at x = {x:g} m is outside the terrain ({terrain.x[0]:g} to {terrain.x[-1]:g} m)",
+                path=path, line=lines[k], field=f"{role}_x",
+            )
     sz = _place_on_ground(sx, data.get("source_z"), terrain, path, lines, "source", notices)
     rz = _place_on_ground(rx, data.get("receiver_z"), terrain, path, lines, "receiver", notices)
     picks = Picks(
