@@ -48,6 +48,26 @@ def main(argv=None):
         return 130
 
 
+def progress_printer(label):
+    """A ``progress(done, total)`` callback that keeps one updating line on a terminal
+    and prints only the last count elsewhere (logs stay short)."""
+    import time
+
+    start = time.perf_counter()
+
+    def progress(done, total):
+        elapsed = time.perf_counter() - start
+        left = elapsed / done * (total - done) if done else 0.0
+        text = f"{label}: {done}/{total} ({elapsed:.0f} s, about {left:.0f} s left)"
+        if sys.stderr.isatty():
+            end = "\n" if done == total else ""
+            print(f"\r{text}", end=end, file=sys.stderr, flush=True)
+        elif done == total:
+            print(text, file=sys.stderr, flush=True)
+
+    return progress
+
+
 def note(message):
     """Print a notice for the user on stderr (stdout stays for results)."""
     print(message, file=sys.stderr, flush=True)

@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-import numpy as np
-
-from . import note
+from . import note, progress_printer
 
 
 def register(sub):
@@ -34,7 +32,7 @@ def run(args):
         raise InputError(f"--noise-ms must be >= 0, got {args.noise_ms:g}")
     picks, info = synthesize(args.model, args.layout, args.out, terrain=args.terrain, mesh=args.mesh,
                              noise_ms=args.noise_ms, seed=args.seed, workers=args.workers,
-                             progress=None)
+                             progress=progress_printer("travel-time fields"))
     for message in info["notices"]:
         note(message)
     note(f"mesh: {info['mesh']}")
