@@ -33,13 +33,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_shots", "shot_sides",
+__all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_side_robust", "fit_shots", "shot_sides",
            "MAX_BRANCHES", "DEFAULT_SIGMA_MS"]
 
 #: Most branches fitted on one side (five layers is more than shallow refraction resolves).
 MAX_BRANCHES = 5
 #: Pick sigma assumed when the pick file gives none, ms (low end of usual 0.5-2 ms, common practice).
 DEFAULT_SIGMA_MS = 0.5
+#: A pick this many robust sigmas from its branch is an outlier (common practice).
+OUTLIER_SIGMA = 4.0
 #: Fewest picks a branch may have (two define a line; three are needed to see its misfit).
 MIN_PICKS_PER_BRANCH = 2
 #: Fewest picks on a side for any fit (common practice: a line from two picks cannot be checked).
@@ -480,7 +482,63 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
     return fit
 
 
-def fit_shots(picks, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS, **options):
+def model_time(fit, offset_m):
+    """First-arrival time (s) of a fitted side at |offset| (m): the least of its branch lines."""
+    return np.min([b.time(offset_m) for b in fit.branches], axis=0)
+
+
+def _flag_outliers(fit, problem, outlier_sigma):
+    resid = problem.time_s - model_time(fit, problem.offset_m)
+    mad = 1.4826 * float(np.median(np.abs(resid - np.median(resid))))
+    scale = np.maximum(problem.sigma_s, mad)
+    return np.abs(resid) > outlier_sigma * scale, resid
+
+
+def fit_side_robust(problem, outlier_sigma=OUTLIER_SIGMA, **options):
+    """Fit a side, set aside the picks far from the fit, and fit again without them.
+
+    A pick is an outlier when it lies more than ``outlier_sigma`` times the larger of its
+    sigma and the side's robust scatter (1.4826 x the median absolute deviation of the
+    residuals, consistent with the normal sigma; Hampel 1974, JASA 69) from the
+    first-arrival model (the least of the branch lines). The side is refitted without
+    the flagged picks, and all picks judged again, until the flagged set is stable.
+
+    Returns
+    -------
+    fit : SideFit
+        Fitted without the outliers (its ``pick_index`` lacks them).
+    outlier : ndarray of bool
+        Per pick of ``problem``.
+    residual_s : ndarray
+        Per pick of ``problem``, time minus the final model, s (NaN if not fitted).
+    """
+    fit = fit_side(problem, **options)
+    m = problem.offset_m.size
+    if not fit.ok:
+        return fit, np.zeros(m, bool), np.full(m, np.nan)
+    flagged, resid = _flag_outliers(fit, problem, outlier_sigma)
+    excluded = np.zeros(m, bool)
+    # refit without the flagged picks until the flagged set stops changing (a gross
+    # outlier can distort the first fit and make good picks look bad)
+    for _ in range(4):
+        if np.array_equal(flagged, excluded) or (~flagged).sum() < MIN_PICKS_PER_SIDE:
+            break
+        keep = ~flagged
+        sub = SideProblem(problem.shot_x, problem.shot_z, problem.side, problem.pick_index[keep],
+                          problem.offset_m[keep], problem.time_s[keep], problem.sigma_s[keep])
+        refit = fit_side(sub, **options)
+        if not refit.ok:
+            break
+        fit, excluded = refit, flagged
+        flagged, resid = _flag_outliers(fit, problem, outlier_sigma)
+    if not np.array_equal(flagged, excluded):
+        flagged = excluded  # report what the fit actually left out
+    if np.any(flagged):
+        fit.messages.append(f"{fit.label}: {int(flagged.sum())} outlier pick(s) left out of the fit")
+    return fit, flagged, resid
+
+
+def fit_shots(picks, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS, outlier_sigma=None, **options):
     """Fit the branches of every shot side of a line.
 
     Parameters
@@ -493,6 +551,9 @@ def fit_shots(picks, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS, 
         Break offsets (m) for every side, or a dict like ``n_branches``.
     sigma_ms : float
         Pick sigma (ms) when the picks carry none.
+    outlier_sigma : float, optional
+        Leave out picks this many robust sigmas from the first fit and fit again
+        (:func:`fit_side_robust`); None or 0: keep every pick.
     **options
         Passed to :func:`fit_side`.
 
@@ -502,8 +563,11 @@ def fit_shots(picks, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS, 
     """
     fits = []
     for problem in shot_sides(picks, sigma_ms=sigma_ms):
-        fits.append(fit_side(problem, n_branches=_per_side(n_branches, problem),
-                             breaks_m=_per_side(breaks_m, problem), **options))
+        kw = dict(options, n_branches=_per_side(n_branches, problem), breaks_m=_per_side(breaks_m, problem))
+        if outlier_sigma:
+            fits.append(fit_side_robust(problem, outlier_sigma=outlier_sigma, **kw)[0])
+        else:
+            fits.append(fit_side(problem, **kw))
     return fits
 
 
@@ -514,4 +578,5 @@ def _per_side(value, problem):
         s = {"right": 1, "left": -1}.get(side, side)
         if abs(float(x) - problem.shot_x) < 1e-3 and s == problem.side:
             return v
-    return None
+    # a dict may carry a value for every other side
+    return getattr(value, "default", None)

@@ -32,7 +32,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, SideFit, fit_shots
+from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, OUTLIER_SIGMA, SideFit, fit_shots
 from .errors import InputError
 
 __all__ = [
@@ -309,7 +309,7 @@ def _align(velocities, template, anchored):
 
 
 def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS,
-                   max_branches=MAX_BRANCHES, min_contrast=0.02, through_origin=True,
+                   max_branches=MAX_BRANCHES, min_contrast=0.02, through_origin=True, outlier_sigma=OUTLIER_SIGMA,
                    velocity_disagreement_pct=10.0, delay_times=True, grm=False, grm_xy_m=None):
     """Interpret a line's picks with the layered methods.
 
@@ -331,6 +331,9 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         Least fractional velocity increase from one branch to the next.
     through_origin : bool
         Hold direct-wave branches through the origin.
+    outlier_sigma : float or None
+        Leave out picks this many robust sigmas from their side's first fit, then fit
+        again (:func:`tomo.branches.fit_side_robust`; default 4); None keeps every pick.
     velocity_disagreement_pct : float
         Warn when the forward and reverse apparent velocities of a refractor differ by
         more than this percentage of their mean (default 10 %, common practice: a dip or a
@@ -356,11 +359,12 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                "breaks_m": breaks_m if not isinstance(breaks_m, dict) else "per side",
                "sigma_ms": sigma_ms, "pick_sigma_from_file": picks.sigma_s is not None,
                "max_branches": max_branches, "min_contrast": min_contrast,
-               "through_origin": through_origin,
+               "through_origin": through_origin, "outlier_sigma": outlier_sigma,
                "velocity_disagreement_pct": velocity_disagreement_pct,
                "delay_times": delay_times, "grm": grm, "grm_xy_m": grm_xy_m}
     fits = fit_shots(picks, n_branches=n_branches, breaks_m=breaks_m, sigma_ms=sigma_ms,
-                     max_branches=max_branches, through_origin=through_origin, min_contrast=min_contrast)
+                     max_branches=max_branches, through_origin=through_origin, min_contrast=min_contrast,
+                     outlier_sigma=outlier_sigma)
     messages = [m for f in fits for m in f.messages if not f.ok]
     warnings = [m for f in fits for m in f.messages if f.ok]
     src, src_index = picks.sources()

@@ -1,12 +1,185 @@
-"""`tomo layers`: not built yet."""
+"""`tomo layers`: branch fits, intercept-time layers, dips and delay-time refractor depths."""
 
-from ..errors import TomoError
+from __future__ import annotations
+
+import json
+import math
+
+from . import note
 
 
 def register(sub):
-    p = sub.add_parser("layers", help="(not built yet)")
+    from ..branches import DEFAULT_SIGMA_MS, MAX_BRANCHES
+
+    p = sub.add_parser(
+        "layers", help="layered interpretation (intercept times, dips, delay times)",
+        description="Fit the travel-time branches of every shot side, derive a layer table "
+                    "(intercept-time method, dipping layers from reversed shots) and refractor "
+                    "depths under the geophones (plus-minus; GRM with --grm). Velocity is "
+                    "assumed to increase with depth.",
+    )
+    p.add_argument("picks", metavar="PICKS.csv", help="pick file")
+    p.add_argument("--terrain", metavar="T.csv", help="terrain file (x,z)")
+    p.add_argument("--out", metavar="layers.json", help="write the interpretation as JSON")
+    p.add_argument("--profile", metavar="refractor.csv", help="write refractor depths per geophone")
+    p.add_argument("--figure", metavar="curves.png", help="write the picks with the fitted branches")
+    p.add_argument("--branches", type=int, metavar="N",
+                   help=f"fit N branches on every side (1-{MAX_BRANCHES}; default: chosen by the BIC)")
+    p.add_argument("--max-branches", type=int, default=MAX_BRANCHES, metavar="N",
+                   help=f"most branches the criterion may choose (default {MAX_BRANCHES})")
+    p.add_argument("--breaks", metavar="B1,B2,...", help="break offsets |x| (m) between branches on every side")
+    p.add_argument("--side-branches", action="append", default=[], metavar="X:SIDE:N",
+                   help="branch count for one side: shot x (m), left|right, N (repeatable)")
+    p.add_argument("--side-breaks", action="append", default=[], metavar="X:SIDE:B1,B2",
+                   help="break offsets (m) for one side (repeatable)")
+    p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS,
+                   help=f"pick sigma when the file has no sigma_ms column, ms (default {DEFAULT_SIGMA_MS:g})")
+    p.add_argument("--min-contrast-pct", type=float, default=2.0,
+                   help="least velocity increase from one branch to the next, %% (default 2)")
+    p.add_argument("--disagree-pct", type=float, default=10.0,
+                   help="warn when forward and reverse refractor velocities differ by more, %% (default 10)")
+    p.add_argument("--grm", action="store_true", help="also compute the generalized reciprocal method profile")
+    p.add_argument("--grm-xy", type=float, metavar="M", help="GRM XY distance, m (default: the optimum)")
+    p.add_argument("--no-delay", action="store_true", help="skip the delay-time (plus-minus) profile")
     p.set_defaults(run=run)
 
 
+def _floats(text, option):
+    from ..errors import InputError
+
+    try:
+        values = [float(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise InputError(f"{option}: expected numbers separated by commas, got {text!r}") from None
+    if not values or any(not math.isfinite(v) or v <= 0 for v in values):
+        raise InputError(f"{option}: expected positive offsets in m, got {text!r}")
+    return values
+
+
+def _side_key(text, option):
+    from ..errors import InputError
+
+    parts = text.split(":")
+    if len(parts) != 3 or parts[1].lower() not in ("left", "right"):
+        raise InputError(f"{option}: expected X:left|right:VALUE, got {text!r}")
+    try:
+        x = float(parts[0])
+    except ValueError:
+        raise InputError(f"{option}: shot x must be a number, got {parts[0]!r}") from None
+    return (x, parts[1].lower()), parts[2]
+
+
+def options_from_args(args):
+    """Library keyword arguments from the parsed command line."""
+    from ..branches import MAX_BRANCHES
+    from ..errors import InputError
+
+    if args.branches is not None and not 1 <= args.branches <= MAX_BRANCHES:
+        raise InputError(f"--branches must be 1 to {MAX_BRANCHES}, got {args.branches}")
+    if not 1 <= args.max_branches <= MAX_BRANCHES:
+        raise InputError(f"--max-branches must be 1 to {MAX_BRANCHES}, got {args.max_branches}")
+    if not args.sigma_ms > 0:
+        raise InputError(f"--sigma-ms must be positive, got {args.sigma_ms:g}")
+    if not args.disagree_pct > 0:
+        raise InputError(f"--disagree-pct must be positive, got {args.disagree_pct:g}")
+    if args.min_contrast_pct < 0:
+        raise InputError(f"--min-contrast-pct must be >= 0, got {args.min_contrast_pct:g}")
+    n_branches = args.branches
+    if args.side_branches:
+        table = {}
+        for text in args.side_branches:
+            key, value = _side_key(text, "--side-branches")
+            try:
+                table[key] = int(value)
+            except ValueError:
+                raise InputError(f"--side-branches: N must be an integer, got {value!r}") from None
+            if not 1 <= table[key] <= MAX_BRANCHES:
+                raise InputError(f"--side-branches: N must be 1 to {MAX_BRANCHES}, got {value}")
+        n_branches = _DefaultDict(table, args.branches)
+    breaks = _floats(args.breaks, "--breaks") if args.breaks else None
+    if args.side_breaks:
+        table = {}
+        for text in args.side_breaks:
+            key, value = _side_key(text, "--side-breaks")
+            table[key] = _floats(value, "--side-breaks")
+        breaks = _DefaultDict(table, breaks)
+    if args.grm_xy is not None and args.grm_xy < 0:
+        raise InputError(f"--grm-xy must be >= 0, got {args.grm_xy:g}")
+    return {"n_branches": n_branches, "breaks_m": breaks, "sigma_ms": args.sigma_ms,
+            "max_branches": args.max_branches, "min_contrast": args.min_contrast_pct / 100.0,
+            "velocity_disagreement_pct": args.disagree_pct, "delay_times": not args.no_delay,
+            "grm": args.grm or args.grm_xy is not None, "grm_xy_m": args.grm_xy}
+
+
+class _DefaultDict(dict):
+    """Per-side values with a value for every other side (used by tomo.branches)."""
+
+    def __init__(self, table, default):
+        super().__init__(table)
+        self.default = default
+
+
 def run(args):
-    raise TomoError("'tomo layers' is not built yet")
+    from ..layered import interpret_line
+    from ..survey import read_picks, read_terrain
+
+    options = options_from_args(args)
+    terrain = read_terrain(args.terrain) if args.terrain else None
+    picks = read_picks(args.picks, terrain=terrain)
+    for message in picks.notices:
+        note(message)
+    result = interpret_line(picks, terrain=terrain, **options)
+    for message in result.messages:
+        note(message)
+    print("layer  velocity (m/s)  thickness (m)  depth to top (m)  reversed")
+    for k, lay in enumerate(result.layers, start=1):
+        h = "-" if lay["thickness_m"] is None else f"{lay['thickness_m']:.2f}"
+        rev = {None: "-", True: "yes", False: "NO"}[lay["reversed"]]
+        print(f"{k:5d}  {lay['velocity_m_s']:14.0f}  {h:>13}  {lay['depth_top_m']:16.2f}  {rev:>8}")
+    for d in result.dips:
+        print(f"layer {d['layer']} between shots {d['shot_left_x']:g} and {d['shot_right_x']:g} m: "
+              f"{d['velocity_m_s']:.0f} m/s, dip {d['dip_deg']:+.1f} deg (positive: deepening to larger x)")
+    if result.profile is not None and len(result.profile):
+        for j in sorted(set(int(r) for r in result.profile.refractor)):
+            x, depth = result.profile.refractor_depths(j)
+            print(f"refractor {j} (delay times): {x.size} geophones from {x.min():g} to {x.max():g} m, "
+                  f"depth {depth.min():.2f} to {depth.max():.2f} m")
+    for w in result.warnings:
+        print(f"warning: {w}")
+    for c in result.cautions:
+        print(f"caution: {c}")
+    if args.out:
+        from ..fileio import atomic_open
+
+        with atomic_open(args.out, "w", encoding="utf-8") as out:
+            json.dump(_json_safe(result.to_dict()), out, indent=1)
+            out.write("\n")
+        print(f"wrote {args.out}")
+    if args.profile:
+        from ..delay import RefractorProfile, write_profile_csv
+        import numpy as np
+
+        prof = result.profile
+        if prof is None:
+            empty = np.zeros(0)
+            prof = RefractorProfile(np.zeros(0, int), empty, empty, empty, empty, empty, empty, np.zeros(0, object))
+            note("no delay-time profile (no refractor reversed at common geophones); the profile file has a header only")
+        write_profile_csv(args.profile, prof)
+        print(f"wrote {args.profile} ({len(prof)} rows)")
+    if args.figure:
+        from ..figures.curves import branches_figure
+
+        branches_figure(result, args.figure, picks=picks)
+        print(f"wrote {args.figure}")
+    return 0
+
+
+def _json_safe(value):
+    """NaN and infinity are not JSON: write them as null."""
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_json_safe(v) for v in value]
+    return value
