@@ -13,8 +13,9 @@ Surface file (CSV, one row per model column)::
 ``depth_m`` is vertical, below the ground at ``x``; ``elevation_m`` the elevation of
 the first place, going down from the ground, where the model reaches the chosen
 velocity; both are empty where the column never reaches it. ``constrained`` is 1 where
-rays pass through the cells on both sides of that place, else 0: a surface drawn where
-no ray goes is the starting model's, not the data's.
+that place lies above the depth of investigation (:func:`investigation_elevation`,
+where the ray coverage thins out), else 0: a surface drawn where few or no rays go is
+mostly the starting model's, not the data's.
 
 The surface is the usual way of reading a refractor out of a gridded tomogram: an
 iso-velocity contour between the overburden and refractor velocities (e.g. Lanz,
@@ -30,7 +31,7 @@ from .errors import InputError
 from .fileio import atomic_open
 
 __all__ = [
-    "ground_elevation", "covered", "investigation_elevation", "grid_table", "contour_surface",
+    "ground_elevation", "ray_cells", "deepest_ray_elevation", "covered", "DOI_FRACTION", "investigation_elevation", "grid_table", "contour_surface",
     "check_contour", "check_output_path", "write_grid", "write_surface",
 ]
 
@@ -40,27 +41,69 @@ def ground_elevation(run, x):
     return np.interp(np.asarray(x, float), run.terrain_x, run.terrain_z)
 
 
-def covered(run, min_coverage_m=0.0):
-    """Boolean (nz, nx): ground cells crossed by more than ``min_coverage_m`` of ray path."""
+def ray_cells(run):
+    """Boolean (nz, nx): ground cells that some ray crosses (coverage > 0)."""
     v = np.asarray(run.velocity, float)
-    return np.isfinite(v) & (np.asarray(run.coverage, float) > min_coverage_m)
+    return np.isfinite(v) & (np.nan_to_num(np.asarray(run.coverage, float)) > 0)
 
 
-def investigation_elevation(run, min_coverage_m=0.0):
-    """Depth-of-investigation line: per model column, the elevation (m) of the bottom
-    edge of the deepest cell a ray reaches; NaN in columns no ray reaches.
-
-    This is the ray-coverage definition (the deepest sampled cell), common practice in
-    refraction tomography; below it the model is the starting model's.
-    """
-    cov = covered(run, min_coverage_m)
+def deepest_ray_elevation(run):
+    """Per model column, the elevation (m) of the bottom edge of the deepest cell a ray
+    crosses; NaN in columns no ray crosses."""
+    cov = ray_cells(run)
     z = np.asarray(run.z, float)
     cell = abs(z[0] - z[1]) if z.size > 1 else 1.0
     out = np.full(run.x.size, np.nan)
     any_cov = cov.any(axis=0)
-    # deepest covered row per column (rows go downward)
-    deepest = cov.shape[0] - 1 - np.argmax(cov[::-1, :], axis=0)
+    deepest = cov.shape[0] - 1 - np.argmax(cov[::-1, :], axis=0)  # rows go downward
     out[any_cov] = z[deepest[any_cov]] - cell / 2
+    return out
+
+
+def covered(run):
+    """Boolean (nz, nx): the ray envelope, ground cells from the ground down to the
+    deepest ray of their column, in columns some ray crosses.
+
+    Between ray paths the model is set by the regularisation from the rays around it;
+    below the deepest ray and in columns without rays no ray reaches, so the model
+    there is the starting model's. Figures blank the cells outside this envelope.
+    """
+    bottom = deepest_ray_elevation(run)
+    z = np.asarray(run.z, float)
+    cell = abs(z[0] - z[1]) if z.size > 1 else 1.0
+    v = np.asarray(run.velocity, float)
+    with np.errstate(invalid="ignore"):
+        inside = z[:, None] - cell / 2 >= bottom[None, :] - 1e-9
+    return np.isfinite(v) & inside & np.isfinite(bottom)[None, :]
+
+
+#: Share of a column's ray length that lies above the depth of investigation.
+DOI_FRACTION = 0.95
+
+
+def investigation_elevation(run, fraction=DOI_FRACTION, window=3):
+    """Depth-of-investigation line: per model column, the elevation (m) above which
+    ``fraction`` of the ray length in the column lies (the coverage first averaged over
+    ``window`` neighbouring columns); NaN in columns no ray crosses.
+
+    A handful of deep rays carry little weight in the inversion; the line marks where
+    the coverage becomes too thin to trust the velocities (a coverage-based depth of
+    investigation; common practice, 95 % is our choice). The deepest ray of each
+    column is :func:`deepest_ray_elevation`.
+    """
+    cov = np.where(ray_cells(run), np.nan_to_num(np.asarray(run.coverage, float)), 0.0)
+    if window > 1:
+        kernel = np.ones(int(window)) / int(window)
+        cov = np.apply_along_axis(lambda row: np.convolve(row, kernel, mode="same"), 1, cov)
+    z = np.asarray(run.z, float)
+    cell = abs(z[0] - z[1]) if z.size > 1 else 1.0
+    total = cov.sum(axis=0)
+    out = np.full(run.x.size, np.nan)
+    deepest = deepest_ray_elevation(run)
+    for j in np.flatnonzero((total > 0) & np.isfinite(deepest)):
+        share = np.cumsum(cov[:, j]) / total[j]
+        k = int(np.searchsorted(share, fraction - 1e-12))
+        out[j] = max(z[min(k, z.size - 1)] - cell / 2, deepest[j])
     return out
 
 
@@ -104,8 +147,8 @@ def contour_surface(run, velocity_m_s):
     -------
     dict
         ``x`` (m), ``ground_z`` (m), ``depth_m``, ``elevation_m`` (NaN where the column
-        never reaches the velocity) and ``constrained`` (bool: rays cross both
-        bracketing cells).
+        never reaches the velocity) and ``constrained`` (bool: the surface lies above
+        the depth of investigation, :func:`investigation_elevation`).
 
     Raises
     ------
@@ -114,7 +157,7 @@ def contour_surface(run, velocity_m_s):
     """
     value = check_contour(run, velocity_m_s)
     v = np.asarray(run.velocity, float)
-    cov = covered(run)
+    doi = investigation_elevation(run)
     z = np.asarray(run.z, float)
     nz, nx = v.shape
     ground_z = ground_elevation(run, run.x)
@@ -131,12 +174,12 @@ def contour_surface(run, velocity_m_s):
         k = fast[0]
         if k == 0:
             elevation[j] = z[rows[0]]
-            constrained[j] = cov[rows[0], j]
             continue
         a, b = rows[k - 1], rows[k]
         frac = (value - v[a, j]) / (v[b, j] - v[a, j])
         elevation[j] = z[a] + frac * (z[b] - z[a])
-        constrained[j] = bool(cov[a, j] and cov[b, j])
+    with np.errstate(invalid="ignore"):
+        constrained = np.isfinite(elevation) & (elevation >= doi)
     return {"x": np.asarray(run.x, float), "ground_z": ground_z, "depth_m": ground_z - elevation,
             "elevation_m": elevation, "constrained": constrained}
 

@@ -255,16 +255,24 @@ def _misfit_section(run):
     return "\n".join(parts)
 
 
-def build_report(run, source=None, skip_note=None):
-    """The report HTML for a run (a str). ``source`` names the run file in the heading."""
-    from .figures.bundle import make_figures
+def build_report(run, source=None, skip_note=None, figure_pngs=None):
+    """The report HTML for a run (a str).
+
+    ``source`` names the run file in the heading. ``figure_pngs`` (figure name -> PNG
+    bytes, names as in :data:`tomo.figures.bundle.FIGURES`) reuses figures already drawn;
+    otherwise they are drawn here.
+    """
+    from .figures.bundle import FIGURES, make_figures
 
     created = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = "Seismic refraction interpretation"
-    figs = make_figures(run, skip_note)
+    if figure_pngs is None:
+        figs = [(spec, _figure_png(fig)) for spec, fig in make_figures(run, skip_note)]
+    else:
+        figs = [(spec, base64.b64encode(figure_pngs[spec.name]).decode("ascii"))
+                for spec in FIGURES if spec.name in figure_pngs]
     fig_html = []
-    for number, (spec, fig) in enumerate(figs, start=1):
-        data = _figure_png(fig)
+    for number, (spec, data) in enumerate(figs, start=1):
         fig_html.append(f'<figure id="fig-{spec.name}"><img alt="{_esc(spec.caption)}" '
                         f'src="data:image/png;base64,{data}"><figcaption><b>Figure {number}.</b> '
                         f"{_esc(spec.caption)}</figcaption></figure>")
@@ -305,12 +313,13 @@ professional under the local codes.</div>
     return body
 
 
-def write_report(path, run, source=None, skip_note=None):
-    """Build the report and write it atomically to ``path``; returns the path."""
+def write_report(path, run, source=None, skip_note=None, figure_pngs=None):
+    """Build the report (see :func:`build_report`) and write it atomically to ``path``;
+    returns the path."""
     from .export import check_output_path
 
     check_output_path(path)
-    text = build_report(run, source=source, skip_note=skip_note)
+    text = build_report(run, source=source, skip_note=skip_note, figure_pngs=figure_pngs)
     with atomic_open(path, "w", encoding="utf-8") as f:
         f.write(text)
     return Path(path)

@@ -40,8 +40,10 @@ def layer_velocities(layered):
 
 
 def _rows(layered):
-    for key in ("profile", "refractor_profile", "refractors", "refractor", "delay_time", "delay_times"):
+    for key in ("delay_time_profile", "profile", "refractor_profile", "refractors", "refractor", "delay_time", "delay_times"):
         value = (layered or {}).get(key)
+        if isinstance(value, dict) and "columns" in value:
+            value = value["columns"]
         if isinstance(value, dict) and "rows" in value:
             value = value["rows"]
         if isinstance(value, dict) and "x" in value:
@@ -93,7 +95,7 @@ def refractor_profiles(layered, sigma_t_ms=None):
         elevation = np.array([_get(r, "elevation_m") for r in group])
         missing = ~np.isfinite(elevation)
         elevation[missing] = (surface - depth)[missing]
-        sigma = np.array([_get(r, "depth_sigma_m", "sigma_depth_m", "sigma_m", "uncertainty_m", "depth_error_m")
+        sigma = np.array([_get(r, "uncertainty_m", "depth_sigma_m", "sigma_depth_m", "sigma_m", "uncertainty_m", "depth_error_m")
                           for r in group])
         if not np.any(np.isfinite(sigma)) and sigma_t_ms and len(velocities) > k:
             v1, v2 = velocities[k - 1], velocities[k]
@@ -133,7 +135,8 @@ def compare_table(run, contour_m_s=None, refractor=None):
     profiles = refractor_profiles(run.layered, sigma_t)
     if not profiles:
         return None
-    k = max(profiles) if refractor is None else int(refractor)
+    # the refractor mapped under the most geophones (the deeper one on a tie)
+    k = max(profiles, key=lambda n: (profiles[n]["x"].size, n)) if refractor is None else int(refractor)
     if k not in profiles:
         return None
     value = contour_m_s if contour_m_s is not None else refractor_contour(run.layered, k)
@@ -165,8 +168,8 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
     table = compare_table(run, contour_m_s, refractor)
     if table is None:
         return None
-    fig = style.new_figure(height_in=5.6)
-    gs = fig.add_gridspec(2, 1, height_ratios=[2.3, 1.0], hspace=0.55)
+    fig = style.new_figure(height_in=6.4)
+    gs = fig.add_gridspec(2, 1, height_ratios=[2.3, 1.0], hspace=0.85)
     ax = fig.add_subplot(gs[0])
     clip, ve = draw_base(ax, run)
     cov = covered(run)
@@ -191,7 +194,7 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
     ax.plot(surf["x"], zc, "--", color=CONTOUR_COLOR, lw=1.6, zorder=4, path_effects=_HALO,
             label=f"{table['contour_m_s']:.0f} m/s contour")
     ax.plot(surf["x"], zu, ":", color=CONTOUR_COLOR, lw=1.2, zorder=4,
-            label="contour without rays")
+            label="same, below depth of investigation")
     ax.set_title(f"{title} (vertical exaggeration {ve:g}:1)")
     handles, labels = ax.get_legend_handles_labels()
     ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.22), ncol=3, frameon=False,
@@ -203,9 +206,9 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
     bx.axhline(0.0, color=style.GREY, lw=0.8)
     ok = table["constrained"]
     bx.plot(x, np.where(ok, d, np.nan), "o-", color=style.PALETTE[0], ms=2.8, lw=1.0,
-            label="contour - refractor (rays)")
+            label="above depth of investigation")
     bx.plot(x, np.where(~ok, d, np.nan), "o", color=style.GREY, ms=2.8, mfc="none",
-            label="no rays at the contour")
+            label="below it")
     bx.set_xlabel("Distance along line (m)")
     bx.set_ylabel("Elevation difference (m)")
     bx.legend(loc="upper left", ncol=3, fontsize=7.5, framealpha=0.9)
@@ -213,9 +216,10 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
     if finite_d.size:
         lim = max(float(np.max(np.abs(finite_d))), float(np.nanmax(sig)) if np.any(np.isfinite(sig)) else 0.0, 0.5)
         bx.set_ylim(-1.2 * lim, 1.9 * lim)
-        rms = float(np.sqrt(np.mean(d[np.isfinite(d) & ok] ** 2))) if np.any(np.isfinite(d) & ok) else float("nan")
-        bx.set_title(f"Difference along the line (positive: contour above the refractor); RMS {rms:.2f} m where rays reach",
-                     fontsize=9)
+        both = np.isfinite(d) & ok
+        where = (f"RMS {float(np.sqrt(np.mean(d[both] ** 2))):.2f} m above the depth of investigation" if both.any()
+                 else "contour below the depth of investigation everywhere")
+        bx.set_title(f"Contour minus refractor elevation (positive: contour above); {where}", fontsize=9)
     # the aspect-locked section is narrower than the free difference panel; match them
     fig.canvas.draw()
     top = ax.get_position()

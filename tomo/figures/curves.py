@@ -102,8 +102,8 @@ def branches_figure(result, path, picks=None, max_columns=3):
                 um = 0.5 * (u0 + u1)
                 # below the line, on the side away from the shot, clear of the picks
                 ax.annotate(f"{b.velocity_m_s:.0f}", (fit.shot_x + fit.side * um, float(b.time(um)) * 1e3),
-                            xytext=(fit.side * 5, -9), textcoords="offset points",
-                            ha="left" if fit.side > 0 else "right", fontsize=7, color=colour)
+                            xytext=(fit.side * 3, -10), textcoords="offset points",
+                            ha="center", fontsize=7, color=colour)
             for c, b in zip(fit.crossovers_m, fit.branches[:-1]):
                 if math.isfinite(c) and c > 0:
                     ax.plot(fit.shot_x + fit.side * c, float(b.time(c)) * 1e3, "D", ms=4, color=style.BLACK,

@@ -47,7 +47,7 @@ def traveltime_fit(run, title="Observed and computed first-arrival times"):
     ax.set_xlabel("Geophone position along line (m)")
     ax.set_ylabel("First-arrival time (ms)")
     ax.set_title(f"{title}: {len(shots)} shots, {p['observed_ms'].size} picks, RMS {run.rms_ms:.2f} ms")
-    ax.legend(loc="upper left", framealpha=0.9)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=3, frameon=False)
     return fig
 
 

@@ -1,10 +1,11 @@
 """Sections of a run's model along the line: velocity and ray coverage.
 
 Both are drawn over the true terrain, with shots and geophones marked and the vertical
-exaggeration stated. Cells no ray reaches are blanked (drawn as pale grey ground) and
-a dashed depth-of-investigation line follows the deepest ray-covered cell of each
-column (:func:`tomo.export.investigation_elevation`): below it the model is the
-starting model's, not the data's.
+exaggeration stated. In the velocity section, cells no ray reaches (below the deepest
+ray of their column, or in columns without rays: :func:`tomo.export.covered`) are
+blanked, drawn as pale grey ground, where the model is the starting model's; the
+coverage section blanks every cell no ray crosses. A dashed depth-of-investigation line
+marks where the coverage thins out (:func:`tomo.export.investigation_elevation`).
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from matplotlib.path import Path as MplPath
 from matplotlib.ticker import FuncFormatter, MaxNLocator
 
 from . import style
-from ..export import covered, ground_elevation, investigation_elevation
+from ..export import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
            "display_cells", "colorbar", "stations", "view_window"]
@@ -58,7 +59,7 @@ def view_window(run):
     grid_x = (run.x >= x_min) & (run.x <= x_max)
     ground = ground_elevation(run, np.linspace(x_min, x_max, 200))
     z_max = float(ground.max())
-    doi = investigation_elevation(run)[grid_x]
+    doi = deepest_ray_elevation(run)[grid_x]
     cell = abs(run.z[0] - run.z[1])
     z_floor = float(run.z[-1] - cell / 2)
     if np.any(np.isfinite(doi)):
@@ -108,7 +109,7 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
             mew=0.5, zorder=7, label="shots", clip_on=False)
     if doi:
         line = investigation_elevation(run)
-        ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6, label="depth of investigation (deepest ray)")
+        ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6, label="depth of investigation (95 % of ray length above)")
     ax.set_xlim(x_min, x_max)
     ax.set_ylim(z_min, z_max)
     ax.set_aspect(ve)
@@ -155,11 +156,11 @@ def contour_levels(values, n=6):
     return levels[(levels > v.min()) & (levels < v.max())]
 
 
-def _legend(ax, extra=()):
+def _legend(ax, extra=(), blank_label="no ray reaches"):
     handles, labels = ax.get_legend_handles_labels()
-    handles = list(handles) + [Patch(facecolor=BLANK, edgecolor=style.GREY, label="no ray coverage")] + list(extra)
-    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=4, frameon=False,
-              handlelength=1.8, columnspacing=1.2)
+    handles = list(handles) + [Patch(facecolor=BLANK, edgecolor=style.GREY, label=blank_label)] + list(extra)
+    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=2, frameon=False,
+              handlelength=1.8, columnspacing=1.5)
 
 
 def velocity_section(run, contours_m_s=None, vertical_exaggeration=None, title="Velocity section"):
@@ -208,7 +209,7 @@ def coverage_section(run, vertical_exaggeration=None, title="Ray coverage"):
     ax = fig.add_subplot(1, 1, 1)
     clip, ve = draw_base(ax, run, vertical_exaggeration)
     cov = np.asarray(run.coverage, float)
-    mask = ~covered(run)
+    mask = ~ray_cells(run)
     data = np.ma.masked_where(mask, cov)
     positive = cov[~mask]
     if positive.size:
@@ -222,5 +223,5 @@ def coverage_section(run, vertical_exaggeration=None, title="Ray coverage"):
         bar.ax.yaxis.set_major_formatter(plain)
         bar.ax.yaxis.set_minor_formatter(FuncFormatter(lambda value, _: f"{value:g}" if str(value)[0] in "25" else ""))
     ax.set_title(f"{title} (vertical exaggeration {ve:g}:1)")
-    _legend(ax)
+    _legend(ax, blank_label="no ray crosses the cell")
     return fig
