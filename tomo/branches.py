@@ -12,8 +12,10 @@ least chi-squared for each branch count is found exactly by dynamic programming 
 all splits, keeping only those in which the slowness decreases from each branch to the
 next (by at least ``min_contrast``) — the concavity of a first-arrival curve.
 
-Choice of the branch count. The count with the least Bayesian information criterion
-``BIC = chi2 + p ln(m)`` wins (Schwarz 1978, Ann. Statist. 6), ``chi2`` the sum of
+Choice of the branch count. We compute the Bayesian information criterion
+``BIC = chi2 + p ln(m)`` (Schwarz 1978, Ann. Statist. 6) for each count and take the
+fewest branches whose BIC is within 10 of the least (a difference above 10 is "very
+strong" evidence, Kass & Raftery 1995, JASA 90), ``chi2`` the sum of
 squared residuals divided by the pick variance, ``m`` the number of picks and ``p`` the
 number of free parameters (two per branch, one less when the first branch is held
 through the origin, plus one per break offset). Because ``chi2`` is scaled by the pick
@@ -21,7 +23,10 @@ sigma, a break is only accepted when it lowers the misfit by several times the n
 with 24 picks one more branch must lower chi2 by ``3 ln 24 = 9.5``. The pick sigma comes
 from the pick file or, failing that, from the ``sigma_ms`` option (default 0.5 ms, the
 low end of usual pick errors, common practice); a sigma set too small makes the
-criterion accept spurious breaks, one set too large merges real branches.
+criterion accept spurious breaks, one set too large merges real branches. Because the
+break positions are the best of many, a chosen break must also pass a test: the slopes
+either side differ by more than three standard errors (``slope_z``), else one branch
+fewer is taken.
 
 The count and the break offsets can be given instead (per side, or for all sides).
 """
@@ -42,6 +47,8 @@ MAX_BRANCHES = 5
 DEFAULT_SIGMA_MS = 0.5
 #: A pick this many robust sigmas from its branch is an outlier (common practice).
 OUTLIER_SIGMA = 4.0
+#: BIC difference that counts as very strong evidence for more branches (Kass & Raftery 1995).
+BIC_MARGIN = 10.0
 #: Fewest picks a branch may have (two define a line; three are needed to see its misfit).
 MIN_PICKS_PER_BRANCH = 2
 #: Fewest picks on a side for any fit (common practice: a line from two picks cannot be checked).
@@ -374,6 +381,73 @@ def _branches_from_bounds(u, t, w, bounds, through_origin):
     return branches, labels
 
 
+def _refine(u, t, w, branches, through_origin):
+    """Least-squares fit of the whole first-arrival model ``t = min_k(a_k + s_k u)``.
+
+    The split search fits each branch to its own run of picks, so a pick near a
+    crossover can only pull on one branch and the run ends are free to take the picks
+    that suit them, which biases short branches. Here all lines are fitted together
+    to the lower envelope (each pick to whichever line is earliest at its offset), starting
+    from the split fit (scipy.optimize.least_squares, trust-region reflective). The
+    result is kept only if it keeps every branch with at least two picks and the
+    slowness decreasing.
+    """
+    from scipy.optimize import least_squares
+
+    k = len(branches)
+    if k < 2:
+        return branches, None
+    sw = np.sqrt(w)
+    free_first = not through_origin
+
+    def unpack(p):
+        s = p[:k]
+        a = np.concatenate([[p[k]] if free_first else [0.0], p[k + (1 if free_first else 0):]])
+        return s, a
+
+    def resid(p):
+        s, a = unpack(p)
+        return (np.min(a[:, None] + s[:, None] * u[None, :], axis=0) - t) * sw
+
+    def jac(p):
+        s, a = unpack(p)
+        which = np.argmin(a[:, None] + s[:, None] * u[None, :], axis=0)
+        j = np.zeros((u.size, p.size))
+        rows = np.arange(u.size)
+        j[rows, which] = u * sw
+        col_a = which + k - (0 if free_first else 1)
+        ok = (which > 0) | free_first
+        j[rows[ok], col_a[ok]] = sw[ok]
+        return j
+
+    p0 = [b.slowness_s_m for b in branches] + [b.intercept_s for b in branches][(0 if free_first else 1):]
+    try:
+        sol = least_squares(resid, np.array(p0, float), jac=jac, method="trf", x_scale="jac")
+    except (ValueError, np.linalg.LinAlgError):
+        return branches, None
+    s, a = unpack(sol.x)
+    which = np.argmin(a[:, None] + s[:, None] * u[None, :], axis=0)
+    counts = np.bincount(which, minlength=k)
+    if np.any(counts < MIN_PICKS_PER_BRANCH) or np.any(np.diff(s) >= 0) or np.any(s <= 0):
+        return branches, None
+    if np.any(np.diff(which) < 0):
+        return branches, None
+    try:
+        cov = np.linalg.inv(sol.jac.T @ sol.jac)
+        err = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    except np.linalg.LinAlgError:
+        err = np.full(sol.x.size, np.nan)
+    ds = err[:k]
+    da = np.concatenate([[err[k]] if free_first else [0.0], err[k + (1 if free_first else 0):]])
+    out = []
+    for i in range(k):
+        sel = which == i
+        res = t[sel] - (a[i] + s[i] * u[sel])
+        out.append(Branch(i + 1, float(s[i]), float(a[i]), float(u[sel].min()), float(u[sel].max()),
+                          int(sel.sum()), float(np.sqrt(np.mean(res**2))), float(ds[i]), float(da[i])))
+    return out, which + 1
+
+
 def _crossovers(branches):
     out = []
     for b1, b2 in zip(branches[:-1], branches[1:]):
@@ -382,8 +456,16 @@ def _crossovers(branches):
     return out
 
 
+def _distinct(b1, b2, z):
+    """True when two neighbouring branches' slownesses differ by more than z standard errors."""
+    se = math.hypot(b1.slowness_sigma_s_m, b2.slowness_sigma_s_m)
+    if not math.isfinite(se):
+        return True
+    return (b1.slowness_s_m - b2.slowness_s_m) > z * se
+
+
 def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
-             through_origin=True, min_contrast=0.02):
+             through_origin=True, min_contrast=0.02, slope_z=3.0, refine=True):
     """Fit the branches of one shot side.
 
     Parameters
@@ -405,6 +487,15 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
     min_contrast : float
         Least fractional decrease of slowness from one branch to the next (0.02: each
         deeper branch at least 2 % faster).
+    slope_z : float
+        With the count chosen by the criterion, a break is kept only where the slowness
+        drops by more than ``slope_z`` standard errors of the two slopes (a two-sided
+        test at about 0.3 % for 3; the BIC alone accepts too many breaks because the
+        best of many break positions is chosen, a known property of change-point
+        searches).
+    refine : bool
+        Refit all branches together as the lower envelope of their lines (see
+        ``_refine``); not done when break offsets are given.
 
     Returns
     -------
@@ -473,8 +564,23 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
                 k = best_k
             fit.chosen_by = "count"
         else:
-            k = min(bic, key=bic.get)
+            # the fewest branches whose BIC is within BIC_MARGIN of the least: more branches
+            # must be "very strongly" preferred (Kass & Raftery 1995, JASA 90, sec. 3.2)
+            least = min(bic.values())
+            k = min(c for c, v in bic.items() if v - least < BIC_MARGIN)
+            # keep a break only where the slopes on its two sides differ significantly
+            while k > 1:
+                trial, _ = _branches_from_bounds(u, t, w, splits[k][1], origin)
+                if all(_distinct(b1, b2, slope_z) for b1, b2 in zip(trial[:-1], trial[1:])):
+                    break
+                k -= 1
+                while k > 1 and k not in splits:
+                    k -= 1
         fit.branches, fit.branch_of_pick = _branches_from_bounds(u, t, w, splits[k][1], origin)
+    if refine and fit.chosen_by != "breaks":
+        refined, labels = _refine(u, t, w, fit.branches, origin)
+        if labels is not None:
+            fit.branches, fit.branch_of_pick = refined, labels
     fit.crossovers_m = _crossovers(fit.branches)
     for b in fit.branches:
         if b.n_picks < 3:

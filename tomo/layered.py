@@ -453,6 +453,13 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                     "disagreement_pct": disagree,
                     "coverage_overlap_m": overlap,
                 })
+                if k == 2:
+                    # depths under the two shots (Telford et al. 1990, sec. 4.3.3)
+                    dips[-1].update({
+                        "perpendicular_depth_left_m": d["perpendicular_depth_down_m"],
+                        "perpendicular_depth_right_m": d["perpendicular_depth_up_m"],
+                        "vertical_depth_left_m": d["vertical_depth_down_m"],
+                        "vertical_depth_right_m": d["vertical_depth_up_m"]})
                 pair_v.append(d["velocity_m_s"])
                 if disagree > pct:
                     warnings.append(
@@ -460,9 +467,23 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                         f"{a_left:.0f} m/s (shot at {fb.shot_x:g} m) differ by {disagree:.0f} % (> {pct:g} %): "
                         f"a dipping or laterally varying refractor; the true velocity {d['velocity_m_s']:.0f} m/s "
                         f"assumes a plane refractor, dip {d['dip_deg']:.1f} deg")
-        if pair_v:
-            v = float(np.mean(pair_v))
-            sig = float(np.std(pair_v) / math.sqrt(len(pair_v))) if len(pair_v) > 1 else None
+        # line velocity: the dipping-layer formula on the weighted mean slowness of each
+        # shooting direction (weights 1/variance of the fitted slopes), so long, well-picked
+        # branches count most and a plane dip cancels
+        dirs = {}
+        for fa, la in zip(fits, layer_of_branch):
+            b = branch_of(fa, la, k) if fa.ok else None
+            if b is not None:
+                wgt = 1.0 / b.slowness_sigma_s_m**2 if b.slowness_sigma_s_m > 0 and math.isfinite(b.slowness_sigma_s_m) else 1.0
+                dirs.setdefault(fa.side, []).append((b.slowness_s_m, wgt, b.slowness_sigma_s_m))
+        mean_s = {}
+        for side, vals in dirs.items():
+            ws = np.array([w for _, w, _ in vals])
+            mean_s[side] = (float(np.sum(ws * np.array([x for x, _, _ in vals])) / ws.sum()), float(1 / math.sqrt(ws.sum())))
+        if pair_v and 1 in mean_s and -1 in mean_s and 1 / mean_s[1][0] > v1 and 1 / mean_s[-1][0] > v1:
+            v = dipping_refractor(v1, 1 / mean_s[1][0], 1 / mean_s[-1][0])["velocity_m_s"]
+            # one sigma from the slowness errors (the formula is close to the harmonic mean)
+            sig = float(v * v * 0.5 * math.hypot(mean_s[1][1], mean_s[-1][1]))
             reversed_ = True
         elif seen:
             v = float(1.0 / np.mean(1.0 / np.asarray(seen)))
