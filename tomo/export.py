@@ -81,10 +81,23 @@ def covered(run):
 DOI_FRACTION = 0.95
 
 
-def investigation_elevation(run, fraction=DOI_FRACTION, window=3):
+def _running_median(values, width):
+    """Median over ``width`` neighbours (NaN ignored; NaN stays NaN)."""
+    half = int(width) // 2
+    out = np.array(values, float, copy=True)
+    for j in np.flatnonzero(np.isfinite(values)):
+        block = values[max(0, j - half): j + half + 1]
+        out[j] = np.nanmedian(block)
+    return out
+
+
+def investigation_elevation(run, fraction=DOI_FRACTION, window=3, median_width=None):
     """Depth-of-investigation line: per model column, the elevation (m) above which
     ``fraction`` of the ray length in the column lies (the coverage first averaged over
-    ``window`` neighbouring columns); NaN in columns no ray crosses.
+    ``window`` neighbouring columns, the line then a running median over
+    ``median_width`` columns, by default 8 % of the grid's width, and never below the
+    deepest ray); NaN in columns no ray
+    crosses.
 
     A handful of deep rays carry little weight in the inversion; the line marks where
     the coverage becomes too thin to trust the velocities (a coverage-based depth of
@@ -104,7 +117,11 @@ def investigation_elevation(run, fraction=DOI_FRACTION, window=3):
         share = np.cumsum(cov[:, j]) / total[j]
         k = int(np.searchsorted(share, fraction - 1e-12))
         out[j] = max(z[min(k, z.size - 1)] - cell / 2, deepest[j])
-    return out
+    # a single ray bundle can make one column's line jump; the median keeps it steady
+    if median_width is None:
+        median_width = max(5, int(0.08 * run.x.size)) | 1
+    out = _running_median(out, median_width) if median_width > 1 else out
+    return np.maximum(out, np.where(np.isfinite(deepest), deepest, np.nan))
 
 
 def grid_table(run):

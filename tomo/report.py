@@ -200,7 +200,7 @@ def _settings_section(run):
 
 
 def _layered_section(run):
-    from .figures.compare import compare_table, layer_velocities
+    from .figures.compare import compare_tables, layer_velocities
 
     if not run.layered:
         return '<p class="note">This run file holds no layered interpretation; the table and the comparison figure are left out.</p>'
@@ -211,29 +211,31 @@ def _layered_section(run):
         thick = layer.get("thickness_m")
         v = layer.get("velocity_m_s")
         depth_text = f"{top:.1f} to {top + thick:.1f}" if thick is not None else f"below {top:.1f}"
-        rows.append((str(k), f"{v:.0f}" if v is not None else "-", f"{thick:.1f}" if thick is not None else "-",
-                     depth_text))
+        dv, dh = layer.get("velocity_sigma_m_s"), layer.get("thickness_sigma_m")
+        v_text = "-" if v is None else f"{v:.0f}" + (f" ± {dv:.0f}" if dv is not None else "")
+        h_text = "-" if thick is None else f"{thick:.1f}" + (f" ± {dh:.1f}" if dh is not None else "")
+        rows.append((str(k), v_text, h_text, depth_text))
         if thick is not None:
             top += thick
     parts = ["<p>Velocities assumed to increase with depth. Thicknesses and depths are for the line as a whole "
              "(intercept-time method); the delay-time refractor below varies along the line.</p>",
              _table(["layer", "velocity (m/s)", "thickness (m)", "depth range (m)"], rows, numeric=(0, 1, 2))]
-    table = compare_table(run)
-    if table is not None:
+    tables = compare_tables(run)
+    for table in tables:
         ok = table["constrained"] & np.isfinite(table["difference_m"])
         prof = table["profile"]
         text = (f"<p>Delay-time refractor {table['refractor']}: depth {np.nanmin(prof['depth_m']):.1f} to "
-                f"{np.nanmax(prof['depth_m']):.1f} m below ground at {prof['x'].size} geophones. "
-                f"The tomogram's {table['contour_m_s']:.0f} m/s contour (the mean of the layer velocities "
-                f"above and below) ")
+                f"{np.nanmax(prof['depth_m']):.1f} m below ground at {prof['x'].size} geophones "
+                f"(x = {prof['x'].min():g} to {prof['x'].max():g} m). The tomogram's {table['contour_m_s']:.0f} m/s "
+                "contour (the mean of the layer velocities above and below) ")
         if ok.any():
             d = table["difference_m"][ok]
-            text += (f"lies on average {np.mean(d):+.2f} m from it (RMS {np.sqrt(np.mean(d ** 2)):.2f} m) at "
-                     f"{ok.sum()} geophones where rays reach it.</p>")
+            text += (f"lies on average {np.mean(d):+.2f} m from it (RMS {np.sqrt(np.mean(d ** 2)):.2f} m) at the "
+                     f"{ok.sum()} of these geophones where it is above the depth of investigation.</p>")
         else:
-            text += "is not reached by rays under the geophones.</p>"
+            text += "lies below the depth of investigation there.</p>"
         parts.append(text)
-    elif len(layer_velocities(run.layered)) >= 2:
+    if not tables and len(layer_velocities(run.layered)) >= 2:
         parts.append('<p class="note">The layered result holds no delay-time refractor profile to compare.</p>')
     return "\n".join(parts)
 

@@ -22,15 +22,13 @@ import numpy as np
 from matplotlib import patheffects
 
 from . import style
-from .section import _edges, colorbar, display_cells, draw_base
+from .section import _edges, colorbar, colour_range, display_cells, draw_base
 from ..export import contour_surface, covered
 
 __all__ = ["refractor_profiles", "layer_velocities", "refractor_contour", "layered_vs_gridded",
-           "compare_table"]
+           "compare_table", "compare_tables"]
 
 _HALO = [patheffects.withStroke(linewidth=3.2, foreground="white")]
-REFRACTOR_COLOR = style.PALETTE[3]  # vermillion
-CONTOUR_COLOR = style.PALETTE[4]    # sky blue
 
 
 def layer_velocities(layered):
@@ -121,13 +119,29 @@ def refractor_contour(layered, refractor=None):
     return 0.5 * (v[k - 1] + v[k])
 
 
+def compare_tables(run, min_points=3):
+    """:func:`compare_table` for every refractor of the layered profile mapped under at
+    least ``min_points`` geophones (each against its own contour); [] when none."""
+    if not run.layered:
+        return []
+    profiles = refractor_profiles(run.layered)
+    out = []
+    for k in sorted(profiles):
+        if profiles[k]["x"].size >= min_points:
+            table = compare_table(run, refractor=k)
+            if table is not None:
+                out.append(table)
+    return out
+
+
 def compare_table(run, contour_m_s=None, refractor=None):
     """Layered refractor and tomogram contour at the refractor's x positions.
 
-    Returns a dict with ``refractor`` (number), ``contour_m_s``, and arrays ``x``,
-    ``refractor_elevation_m``, ``sigma_m``, ``contour_elevation_m``, ``difference_m``
-    (contour minus refractor, m) and ``constrained`` (rays at the contour); or None when
-    the run holds no layered refractor profile.
+    ``refractor`` counts from 1; by default the refractor mapped under the most
+    geophones. Returns a dict with ``refractor`` (number), ``contour_m_s``, and arrays
+    ``x``, ``refractor_elevation_m``, ``sigma_m``, ``contour_elevation_m``,
+    ``difference_m`` (contour minus refractor, m) and ``constrained`` (contour above the
+    depth of investigation); or None when the run holds no such refractor profile.
     """
     if not run.layered:
         return None
@@ -135,7 +149,6 @@ def compare_table(run, contour_m_s=None, refractor=None):
     profiles = refractor_profiles(run.layered, sigma_t)
     if not profiles:
         return None
-    # the refractor mapped under the most geophones (the deeper one on a tie)
     k = max(profiles, key=lambda n: (profiles[n]["x"].size, n)) if refractor is None else int(refractor)
     if k not in profiles:
         return None
@@ -156,73 +169,93 @@ def compare_table(run, contour_m_s=None, refractor=None):
             "constrained": constrained, "surface": surface, "profile": prof}
 
 
+#: One colour per refractor (Okabe-Ito): sky blue, orange, vermillion, bluish green.
+REFRACTOR_COLORS = (style.PALETTE[4], style.PALETTE[1], style.PALETTE[3], style.PALETTE[2])
+
+
+def _break_gaps(x, *ys):
+    """Insert NaN where consecutive x are more than 1.5 median steps apart, so lines
+    are not drawn across geophones the refractor was not mapped under."""
+    x = np.asarray(x, float)
+    if x.size < 3:
+        return (x, *ys)
+    step = np.diff(x)
+    gap = np.flatnonzero(step > 1.5 * np.median(step)) + 1
+    return (np.insert(x, gap, np.nan), *(np.insert(np.asarray(y, float), gap, np.nan) for y in ys))
+
+
 def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and gridded interpretation"):
-    """Delay-time refractor (with uncertainty) and its iso-velocity contour over the
-    tomogram, and their difference along the line.
+    """Delay-time refractors (with uncertainty) and their iso-velocity contours over the
+    tomogram, and their differences along the line.
+
+    Every refractor mapped under at least three geophones is drawn, each with the
+    contour at the mean of the layer velocities above and below it; ``refractor`` (and
+    ``contour_m_s``) restrict the figure to one.
 
     Returns
     -------
     matplotlib.figure.Figure or None
         None when the run holds no layered refractor profile (nothing to compare).
     """
-    table = compare_table(run, contour_m_s, refractor)
-    if table is None:
+    if refractor is not None or contour_m_s is not None:
+        one = compare_table(run, contour_m_s, refractor)
+        tables = [one] if one is not None else []
+    else:
+        tables = compare_tables(run)
+    if not tables:
         return None
-    fig = style.new_figure(height_in=6.4)
-    gs = fig.add_gridspec(2, 1, height_ratios=[2.3, 1.0], hspace=0.85)
+    fig = style.new_figure(height_in=6.6)
+    gs = fig.add_gridspec(3, 1, height_ratios=[2.4, 0.42, 1.0], hspace=0.25)
     ax = fig.add_subplot(gs[0])
     clip, ve = draw_base(ax, run)
     cov = covered(run)
     vmasked = np.ma.masked_where(~cov, np.asarray(run.velocity, float))
     finite = np.asarray(run.velocity)[cov]
     if finite.size:
+        vmin, vmax, extend = colour_range(run)
         image = ax.pcolormesh(_edges(run.x), _edges(run.z), display_cells(run, vmasked), cmap=style.VELOCITY_CMAP,
-                              vmin=float(finite.min()), vmax=float(finite.max()), shading="flat", zorder=1,
-                              rasterized=True)
+                              vmin=vmin, vmax=vmax, shading="flat", zorder=1, rasterized=True)
         image.set_clip_path(clip)
-        colorbar(fig, ax, image, "P-wave velocity (m/s)")
-    x, zr, sig = table["x"], table["refractor_elevation_m"], table["sigma_m"]
-    k = table["refractor"]
-    if np.any(np.isfinite(sig)):
-        ax.fill_between(x, zr - sig, zr + sig, color=REFRACTOR_COLOR, alpha=0.35, lw=0, zorder=3,
-                        label="delay-time uncertainty (1 sigma)")
-    ax.plot(x, zr, "-", color=REFRACTOR_COLOR, lw=1.6, zorder=4, path_effects=_HALO,
-            label=f"delay-time refractor {k}")
-    surf = table["surface"]
-    zc = np.where(surf["constrained"], surf["elevation_m"], np.nan)
-    zu = np.where(~surf["constrained"], surf["elevation_m"], np.nan)
-    ax.plot(surf["x"], zc, "--", color=CONTOUR_COLOR, lw=1.6, zorder=4, path_effects=_HALO,
-            label=f"{table['contour_m_s']:.0f} m/s contour")
-    ax.plot(surf["x"], zu, ":", color=CONTOUR_COLOR, lw=1.2, zorder=4,
-            label="same, below depth of investigation")
+        colorbar(fig, ax, image, "P-wave velocity (m/s)", extend=extend)
+    bx = fig.add_subplot(gs[2])
+    bx.axhline(0.0, color=style.GREY, lw=0.8)
+    lim = 0.5
+    for n, table in enumerate(tables):
+        colour = REFRACTOR_COLORS[n % len(REFRACTOR_COLORS)]
+        d = table["difference_m"]
+        ok = table["constrained"] & np.isfinite(d)
+        x, zr, sig, d_ok, d_no = _break_gaps(table["x"], table["refractor_elevation_m"], table["sigma_m"],
+                                             np.where(ok, d, np.nan), np.where(~ok, d, np.nan))
+        k = table["refractor"]
+        rms = f", RMS {float(np.sqrt(np.mean(d[ok] ** 2))):.1f} m" if ok.any() else ""
+        if np.any(np.isfinite(sig)):
+            ax.fill_between(x, zr - sig, zr + sig, color=colour, alpha=0.35, lw=0, zorder=3)
+            bx.fill_between(x, -sig, sig, color=colour, alpha=0.2, lw=0)
+        ax.plot(x, zr, "-", color=colour, lw=1.6, zorder=4, path_effects=_HALO,
+                label=f"refractor {k}, delay times (band: 1 sigma)")
+        surf = table["surface"]
+        zc = np.where(surf["constrained"], surf["elevation_m"], np.nan)
+        ax.plot(surf["x"], zc, "--", color=colour, lw=1.4, zorder=4, path_effects=_HALO,
+                label=f"refractor {k}: {table['contour_m_s']:.0f} m/s contour (difference{rms})")
+        bx.plot(x, d_ok, "o-", color=colour, ms=2.8, lw=1.0, mec=style.BLACK, mew=0.3)
+        bx.plot(x, d_no, "o", color=colour, ms=2.8, mfc="none")
+        if np.any(np.isfinite(d)):
+            lim = max(lim, float(np.nanmax(np.abs(d))))
     ax.set_title(f"{title} (vertical exaggeration {ve:g}:1)")
     handles, labels = ax.get_legend_handles_labels()
-    ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.22), ncol=3, frameon=False,
-              fontsize=7.5, columnspacing=1.0)
-    bx = fig.add_subplot(gs[1], sharex=ax)
-    d = table["difference_m"]
-    if np.any(np.isfinite(sig)):
-        bx.fill_between(x, -sig, sig, color=REFRACTOR_COLOR, alpha=0.25, lw=0, label="+/- delay-time sigma")
-    bx.axhline(0.0, color=style.GREY, lw=0.8)
-    ok = table["constrained"]
-    bx.plot(x, np.where(ok, d, np.nan), "o-", color=style.PALETTE[0], ms=2.8, lw=1.0,
-            label="above depth of investigation")
-    bx.plot(x, np.where(~ok, d, np.nan), "o", color=style.GREY, ms=2.8, mfc="none",
-            label="below it")
+    lx = fig.add_subplot(gs[1])
+    lx.axis("off")
+    lx.legend(handles, labels, loc="center", ncol=2, frameon=False, fontsize=7.5, columnspacing=1.5)
+    bx.set_xlim(ax.get_xlim())
+    bx.set_ylim(-1.15 * lim, 1.15 * lim)
     bx.set_xlabel("Distance along line (m)")
-    bx.set_ylabel("Elevation difference (m)")
-    bx.legend(loc="upper left", ncol=3, fontsize=7.5, framealpha=0.9)
-    finite_d = d[np.isfinite(d)]
-    if finite_d.size:
-        lim = max(float(np.max(np.abs(finite_d))), float(np.nanmax(sig)) if np.any(np.isfinite(sig)) else 0.0, 0.5)
-        bx.set_ylim(-1.2 * lim, 1.9 * lim)
-        both = np.isfinite(d) & ok
-        where = (f"RMS {float(np.sqrt(np.mean(d[both] ** 2))):.2f} m above the depth of investigation" if both.any()
-                 else "contour below the depth of investigation everywhere")
-        bx.set_title(f"Contour minus refractor elevation (positive: contour above); {where}", fontsize=9)
-    # the aspect-locked section is narrower than the free difference panel; match them
+    bx.set_ylabel("Difference (m)")
+    bx.set_title("Contour minus refractor elevation (positive: contour above; open circles: contour below "
+                 "the depth of investigation)", fontsize=8.5)
+    # the aspect-locked section is narrower than the free panels; match their widths
     fig.canvas.draw()
     top = ax.get_position()
-    low = bx.get_position()
-    bx.set_position([top.x0, low.y0, top.width, low.height])
+    for other in (bx, lx):
+        low = other.get_position()
+        other.set_position([top.x0, low.y0, top.width, low.height])
     return fig

@@ -20,7 +20,7 @@ from . import style
 from ..export import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
-           "display_cells", "colorbar", "stations", "view_window"]
+           "display_cells", "colorbar", "colour_range", "stations", "view_window"]
 
 #: Pale grey for ground the data do not constrain.
 BLANK = "#e4e4e4"
@@ -146,6 +146,25 @@ def colorbar(fig, ax, image, label, **kwargs):
     return bar
 
 
+def colour_range(run):
+    """Velocity colour limits (m/s) from the cells above the depth of investigation, so
+    that poorly covered deep cells do not set the scale; and whether cells beyond
+    them exist (for the colour bar's arrows)."""
+    v = np.asarray(run.velocity, float)
+    cov = covered(run)
+    doi = investigation_elevation(run)
+    with np.errstate(invalid="ignore"):
+        trusted = cov & (np.asarray(run.z, float)[:, None] >= doi[None, :])
+    values = v[trusted] if trusted.any() else v[cov]
+    if values.size == 0:
+        return 0.0, 1.0, "neither"
+    lo, hi = float(values.min()), float(values.max())
+    shown = v[cov]
+    below, above = bool(np.any(shown < lo)), bool(np.any(shown > hi))
+    extend = {(False, False): "neither", (True, False): "min", (False, True): "max", (True, True): "both"}[(below, above)]
+    return lo, hi, extend
+
+
 def contour_levels(values, n=6):
     """Round contour velocities (m/s) spanning ``values`` (NaN ignored)."""
     v = np.asarray(values, float)
@@ -185,7 +204,7 @@ def velocity_section(run, contours_m_s=None, vertical_exaggeration=None, title="
     v = np.ma.masked_where(~cov, np.asarray(run.velocity, float))
     xe, ze = _edges(run.x), _edges(run.z)
     finite = np.asarray(run.velocity)[cov]
-    vmin, vmax = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+    vmin, vmax, extend = colour_range(run)
     image = ax.pcolormesh(xe, ze, display_cells(run, v), cmap=style.VELOCITY_CMAP, vmin=vmin, vmax=vmax, shading="flat", zorder=1,
                           rasterized=True)
     image.set_clip_path(clip)
@@ -197,7 +216,7 @@ def velocity_section(run, contours_m_s=None, vertical_exaggeration=None, title="
         for t in labels:
             t.set_color(style.BLACK)
             t.set_bbox({"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
-    colorbar(fig, ax, image, "P-wave velocity (m/s)")
+    colorbar(fig, ax, image, "P-wave velocity (m/s)", extend=extend)
     ax.set_title(f"{title} (vertical exaggeration {ve:g}:1; contours in m/s)")
     _legend(ax)
     return fig
