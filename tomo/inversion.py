@@ -51,7 +51,7 @@ from .rays import DEFAULT_STEP, time_gradient, trace_many
 from .runfile import RunData, write_run
 
 __all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert", "run_inversion",
-           "forward_pass", "PassResult", "MIN_PICKS", "MAX_CELLS_PER_PICK"]
+           "forward_pass", "PassResult", "default_mesh_spec", "MIN_PICKS", "MAX_CELLS_PER_PICK"]
 
 #: Fewer picks than this cannot support a tomogram (use the layered interpretation).
 MIN_PICKS = 20
@@ -93,7 +93,11 @@ class InversionSettings:
     lambda_start : float
         Starting regularisation weight relative to ||W J||_F / ||R||_F.
     lambda_cooling : float
-        Factor applied to lam each iteration (0 < c < 1).
+        Factor applied to lam each iteration (0 < c <= 1).
+    max_reduction : float
+        The weight is held (not lowered) when the linearised prediction of chi2 falls
+        below max(chi2_target, max_reduction x current chi2): a Gauss-Newton step on
+        travel times is trusted only that far (common practice).
     v_min_m_s, v_max_m_s : float or None
         Velocity bounds, m/s; None chooses them from the starting model
         (min(150, start min / 2), max(7000, 2 x start max)).
@@ -127,11 +131,12 @@ class InversionSettings:
     damping: float = 0.05
     lambda_start: float = 1.0
     lambda_cooling: float = 0.5
+    max_reduction: float = 0.3
     v_min_m_s: float | None = None
     v_max_m_s: float | None = None
     solver: str = "lsmr"
     solver_iterations: int = 400
-    solver_tol: float = 1e-5
+    solver_tol: float = 1e-4
     line_search_steps: int = 3
     workers: int = 2
     order: int = 2
@@ -153,6 +158,8 @@ class InversionSettings:
                 bad(name, "must be >= 0")
         if self.smooth_x == 0 and self.smooth_z == 0 and self.damping == 0:
             bad("damping", "smoothing and damping are all zero: the problem has no regularisation")
+        if not 0 < self.max_reduction < 1:
+            bad("max_reduction", "must be in (0, 1)")
         if not 0 < self.lambda_cooling <= 1:
             bad("lambda_cooling", "must be in (0, 1]")
         if self.parameter not in ("logv", "slowness"):
@@ -529,13 +536,14 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
     target_hi = settings.chi2_target + settings.chi2_tolerance
     target_lo = max(settings.chi2_target - settings.chi2_tolerance, 0.0)
     try:
-        snapshot("running")
+        snapshot("running (starting model)")
         report(0, float("nan"), 0.0, 0.0)
         stop, converged = None, False
         if chi2 <= target_hi:
             stop, converged = STOP_TARGET, True
         lam_prev = None
         stalled = 0
+        held = 0
         k = 0
         while stop is None:
             if k >= settings.max_iterations:
@@ -551,23 +559,44 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
             A = sp.diags(weight) @ J
             b = weight * r
             t_solve = _time.perf_counter()
+            # the linearised prediction should not promise more than a fall of chi2 to
+            # max_reduction times its value (the linearisation is not trusted further)
+            aim = max(settings.chi2_target, settings.max_reduction * chi2)
             if lam_prev is None:
                 norm_a = math.sqrt(float(A.multiply(A).sum()))
                 norm_r = math.sqrt(float(R.multiply(R).sum()) + settings.damping ** 2 * n_par)
-                lam_try = settings.lambda_start * norm_a / max(norm_r, 1e-30)
-                candidates = [lam_try]
+                lam = settings.lambda_start * norm_a / max(norm_r, 1e-30)
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
+                # calibrate the first weight by factors of 2 until the prediction
+                # brackets the aim (at most a few solves)
+                direction = 2.0 if predicted < aim else 0.5
+                for _ in range(6):
+                    lam_c = lam * direction
+                    u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, settings, u)
+                    if direction > 1:
+                        lam, u, predicted = lam_c, u_c, pred_c
+                        if pred_c >= aim:
+                            break
+                    else:
+                        if pred_c < aim:
+                            break
+                        lam, u, predicted = lam_c, u_c, pred_c
             else:
-                candidates = [lam_prev * settings.lambda_cooling, lam_prev]
-            u, lam, predicted = None, None, None
-            for lam_c in candidates:
-                u_c = _solve(A, b, R, m - m0, m - m_ref, lam_c, settings)
-                pred = float(np.mean((b - A @ u_c) ** 2))
-                u, lam, predicted = u_c, lam_c, pred
-                # undershooting the target in the linear prediction: hold lam instead
-                if pred >= target_lo or lam_prev is None:
-                    break
+                lam = lam_prev * settings.lambda_cooling
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
+                if predicted < aim and held < 1 and settings.lambda_cooling < 1:
+                    # the linear prediction undershoots the aim: hold lam for one
+                    # iteration (holding longer stalls at the regularised minimum)
+                    lam = lam_prev
+                    u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
+                    held += 1
+                else:
+                    held = 0
             timing["solve_s"] += _time.perf_counter() - t_solve
-            # line search on the true misfit
+            # line search on the true misfit: full step first; if it fails, the minimum
+            # of the parabola through chi2(0), its slope at 0 (from the linearisation) and
+            # chi2(alpha) (Nocedal & Wright 2006, sec. 3.5), then halving
+            slope0 = -2.0 * float(np.mean(b * (A @ u)))
             alpha, best = 1.0, None
             for _ in range(settings.line_search_steps + 1):
                 trial = np.clip(m + alpha * u, lo, hi)
@@ -585,7 +614,9 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                         if chi2_2 < chi2 and abs(chi2_2 - settings.chi2_target) < abs(chi2_t - settings.chi2_target):
                             best = (trial2, res_2, r_2, chi2_2, a2)
                     break
-                alpha *= 0.5
+                curve = (chi2_t - chi2 - slope0 * alpha) / alpha ** 2
+                a_min = -slope0 / (2.0 * curve) if curve > 0 and slope0 < 0 else 0.5 * alpha
+                alpha = float(np.clip(a_min, 0.1 * alpha, 0.7 * alpha))
             lam_prev = lam
             if best is None:
                 stop = STOP_NO_STEP
@@ -606,15 +637,26 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 stalled = 0
             if stop is None and k >= settings.max_iterations:
                 stop = STOP_MAX
-            snapshot(stop or "running", converged)
+            if stop is None:
+                snapshot(f"running (iteration {k} finished)")
             report(k, lam, alpha, _time.perf_counter() - t_iter)
         run = snapshot(stop, converged)
     except KeyboardInterrupt:
         last = state["run"]
         n_done = 0 if last is None else last.iterations
-        where = f" in {out_path}" if out_path is not None and last is not None else ""
-        raise InversionInterrupted(f"inversion interrupted; the last finished iteration ({n_done}) is{where or ' kept'}"
-                                   f"{'' if where else ' in memory'}", last, out_path) from None
+        if last is not None:
+            last.stop_reason = "interrupted"
+            if out_path is not None:
+                try:
+                    write_run(out_path, last)  # atomic: a second Ctrl-C keeps the previous file
+                except KeyboardInterrupt:
+                    pass
+        if out_path is not None and last is not None:
+            message = (f"interrupted; {out_path} holds the last finished iteration "
+                       f"({n_done} of {settings.max_iterations})")
+        else:
+            message = f"interrupted after {n_done} finished iteration(s); nothing was written"
+        raise InversionInterrupted(message, last, out_path) from None
     # not part of the run file: how the time was spent (benchmarks/invert.py prints it)
     run.timing = dict(timing, total_s=_time.perf_counter() - t_begin)
     return run
@@ -632,7 +674,12 @@ def _rms_ms(r):
     return float(np.sqrt(np.mean(r ** 2)) * 1e3)
 
 
-def _solve(A, b, R, rough, dev, lam, settings):
+def _solve_predict(A, b, R, rough, dev, lam, settings, x0):
+    u = _solve(A, b, R, rough, dev, lam, settings, x0)
+    return u, float(np.mean((b - A @ u) ** 2))
+
+
+def _solve(A, b, R, rough, dev, lam, settings, x0=None):
     """Solve the stacked damped least-squares system for the update u."""
     n = A.shape[1]
     beta = settings.damping
@@ -648,9 +695,9 @@ def _solve(A, b, R, rough, dev, lam, settings):
     y = np.concatenate(rhs)
     tol = settings.solver_tol
     if settings.solver == "lsmr":
-        out = lsmr(M, y, atol=tol, btol=tol, maxiter=settings.solver_iterations)
+        out = lsmr(M, y, atol=tol, btol=tol, maxiter=settings.solver_iterations, x0=x0)
     else:
-        out = lsqr(M, y, atol=tol, btol=tol, iter_lim=settings.solver_iterations)
+        out = lsqr(M, y, atol=tol, btol=tol, iter_lim=settings.solver_iterations, x0=x0)
     u = out[0]
     if not np.all(np.isfinite(u)):
         raise SolverError("the least-squares update is not finite (check the picks for gross errors)")
@@ -692,7 +739,7 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         raise InputError(f"bad setting: {exc}") from None
     terrain = read_terrain(terrain_path) if terrain_path else None
     picks = read_picks(picks_path, terrain=terrain)
-    spec = read_mesh_spec(mesh_path) if mesh_path else None
+    spec = default_mesh_spec(picks, read_mesh_spec(mesh_path) if mesh_path else None)
     mesh, spec = mesh_for_picks(picks, terrain, spec)
     notes = list(picks.notices)
     layered = None
@@ -709,3 +756,24 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
              "mesh_file": None if mesh_path is None else str(mesh_path)}
     return invert(picks, mesh, velocity, opts, progress=progress, out_path=out_path, layered=layered,
                   notes=notes, extra_settings=extra)
+
+
+def default_mesh_spec(picks, spec=None):
+    """Mesh spec for an inversion: model cells of half the station spacing (rounded down
+    to 1-2-5) unless ``spec`` sets ``cell_m``; the rest is left to
+    ``tomo.mesh.auto_mesh_spec``.
+
+    A tomogram cannot resolve much below the station spacing (common practice), so
+    cells of half of it keep the unknowns few while the forward grid (``refine`` node
+    intervals per cell) keeps the travel times accurate.
+    """
+    from dataclasses import replace as _replace
+
+    from .mesh import MeshSpec, _nice
+
+    spec = spec or MeshSpec()
+    if spec.cell_m is None:
+        xs = np.unique(np.round(np.concatenate([picks.source_x, picks.receiver_x]), 4))
+        spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
+        spec = _replace(spec, cell_m=_nice(max(spacing, 1e-3) / 2.0))
+    return spec

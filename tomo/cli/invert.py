@@ -1,12 +1,87 @@
-"""`tomo invert`: not built yet."""
+"""`tomo invert`: travel-time tomography of a pick file into a run file (HDF5)."""
 
-from ..errors import TomoError
+from __future__ import annotations
+
+import sys
+
+from . import note
+
+#: Defaults shown in --help come from the library's own settings.
+from ..inversion import InversionSettings as _Settings
+
+_D = _Settings()
 
 
 def register(sub):
-    p = sub.add_parser("invert", help="(not built yet)")
+    p = sub.add_parser(
+        "invert", help="invert first-arrival picks for a gridded velocity section",
+        description="Travel-time tomography: regularised least-squares updates from a starting "
+                    "model until the picks are fitted to their uncertainty (chi-squared about 1). "
+                    "The run file is rewritten after every finished iteration, so Ctrl-C keeps "
+                    "the last finished one. A tomogram is one of many models that fit the picks: "
+                    "velocities do not identify materials; calibrate against boreholes.",
+    )
+    p.add_argument("picks", metavar="PICKS.csv", help="pick file")
+    p.add_argument("--terrain", metavar="T.csv", help="terrain file (x, z in m)")
+    p.add_argument("--mesh", metavar="MESH.toml",
+                   help="mesh spec (default: cells of half the station spacing, chosen from the survey)")
+    p.add_argument("--start", choices=["layered", "gradient"], default="layered",
+                   help="starting model: the layered interpretation (default) or a 1-D "
+                        "velocity-depth gradient fitted to the picks")
+    p.add_argument("--out", default="run.h5", metavar="RUN.h5", help="run file to write (default run.h5)")
+    g = p.add_argument_group("inversion settings (defaults suit a typical line)")
+    g.add_argument("--max-iterations", type=int, default=_D.max_iterations, help=f"(default {_D.max_iterations})")
+    g.add_argument("--chi2-target", type=float, default=_D.chi2_target,
+                   help=f"target of mean((residual/sigma)^2) (default {_D.chi2_target:g})")
+    g.add_argument("--sigma-ms", type=float, default=_D.default_sigma_ms,
+                   help=f"pick uncertainty where the pick file has no sigma_ms, ms (default {_D.default_sigma_ms:g})")
+    g.add_argument("--parameter", choices=["logv", "slowness"], default=_D.parameter,
+                   help=f"model parameter (default {_D.parameter})")
+    g.add_argument("--smooth-x", type=float, default=_D.smooth_x,
+                   help=f"weight of horizontal smoothing (default {_D.smooth_x:g})")
+    g.add_argument("--smooth-z", type=float, default=_D.smooth_z,
+                   help=f"weight of vertical smoothing (default {_D.smooth_z:g})")
+    g.add_argument("--damping", type=float, default=_D.damping,
+                   help=f"weight of damping toward the starting model (default {_D.damping:g})")
+    g.add_argument("--lambda-start", type=float, default=_D.lambda_start,
+                   help=f"starting regularisation weight, relative (default {_D.lambda_start:g})")
+    g.add_argument("--lambda-cooling", type=float, default=_D.lambda_cooling,
+                   help=f"factor lowering the weight per iteration (default {_D.lambda_cooling:g})")
+    g.add_argument("--v-min", type=float, default=None, metavar="M_S",
+                   help="lowest velocity allowed, m/s (default: min(150, half the starting minimum))")
+    g.add_argument("--v-max", type=float, default=None, metavar="M_S",
+                   help="highest velocity allowed, m/s (default: max(7000, twice the starting maximum))")
+    g.add_argument("--workers", type=int, default=_D.workers,
+                   help=f"processes for forward solves and rays (default {_D.workers})")
     p.set_defaults(run=run)
 
 
+def _print_progress(info):
+    """One progress line per iteration on stderr."""
+    note(str(info))
+
+
 def run(args):
-    raise TomoError("'tomo invert' is not built yet")
+    from ..inversion import InversionInterrupted, run_inversion
+
+    settings = dict(
+        max_iterations=args.max_iterations, chi2_target=args.chi2_target,
+        default_sigma_ms=args.sigma_ms, parameter=args.parameter, smooth_x=args.smooth_x,
+        smooth_z=args.smooth_z, damping=args.damping, lambda_start=args.lambda_start,
+        lambda_cooling=args.lambda_cooling, v_min_m_s=args.v_min, v_max_m_s=args.v_max,
+        workers=args.workers,
+    )
+    try:
+        result = run_inversion(args.picks, terrain_path=args.terrain, mesh_path=args.mesh, start=args.start,
+                               out_path=args.out, progress=_print_progress, **settings)
+    except InversionInterrupted as exc:
+        print(f"tomo invert: {exc.message}", file=sys.stderr)
+        return 130
+    for message in result.notes:
+        note(message)
+    print(f"wrote {args.out}: {result.iterations} iteration(s), chi2 {result.chi2:.3f}, "
+          f"RMS {result.rms_ms:.3f} ms; stopped: {result.stop_reason}")
+    if not result.converged:
+        note("the picks are not fitted to their uncertainty (chi2 above target): "
+             "see the residuals before using the section")
+    return 0

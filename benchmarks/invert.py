@@ -1,0 +1,114 @@
+"""Speed and memory of the tomographic inversion on two typical lines.
+
+    /work/venv/bin/python benchmarks/invert.py [a|b] [--workers N]
+
+(a) 96 geophones at 2 m, 25 shots (about 2,400 picks); (b) a 1.2 km line, 241
+geophones at 5 m and 41 shots. Synthetic picks (0.5 ms Gaussian noise, seeded) come
+from an invented two-layer model with an undulating refractor, computed on a forward
+grid twice as fine as the inversion's. Prints per iteration the time in forward solves,
+ray tracing and the least-squares solve, then the total, the time the same number of
+plain forward solves takes (``tomo.forward.travel_times``) and peak memory.
+
+Goals (issue 4, on this 2-core machine): total <= 2 x the forward solves it needs;
+(a) under 30 s; (b) under 3 minutes and under 2 GB.
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import sys
+import time
+
+import numpy as np
+
+from tomo.forward import travel_times
+from tomo.inversion import InversionSettings, default_mesh_spec, invert
+from tomo.mesh import build_mesh, mesh_for_picks
+from tomo.model import Layer, Model
+from tomo.starting import gradient_start
+from tomo.survey import Picks, flat_terrain
+
+CASES = {
+    # name: (geophone spacing m, n geophones, shot spacing m, n shots, refractor depth m)
+    "a": (2.0, 96, 8.0, 25, 10.0),
+    "b": (5.0, 241, 30.0, 41, 30.0),
+}
+
+
+def make_line(case, seed=7):
+    dx, n_geo, ds, n_shot, depth = CASES[case]
+    geo = np.arange(n_geo) * dx
+    shots = np.arange(n_shot) * ds
+    S, R = np.meshgrid(shots, geo, indexing="ij")
+    keep = np.abs(S - R) > 1e-6
+    layout = Picks(S[keep], 0 * S[keep], R[keep], 0 * R[keep])
+    length = geo[-1]
+    xb = np.linspace(0, length, 9)
+    base = np.column_stack([xb, depth * (1 + 0.3 * np.sin(2 * np.pi * xb / length * 1.5))])
+    terrain = flat_terrain(-0.2 * length, 1.2 * length)
+    model = Model((Layer(600.0, 10.0, base), Layer(2500.0, 5.0)), terrain=terrain)
+    spec = default_mesh_spec(layout)
+    mesh, spec = mesh_for_picks(layout, terrain, spec)
+    fine = build_mesh(layout.receiver_x.min(), layout.receiver_x.max(), terrain, mesh.cell / 2,
+                      spec.depth_m, mesh.refine, spec.padding_m)
+    t = travel_times(fine, model.slowness_nodes(fine), layout, workers=2).time_s
+    rng = np.random.default_rng(seed)
+    sigma = 0.5e-3
+    picks = layout.with_times(t + rng.normal(0, sigma, t.size), np.full(t.size, sigma))
+    return picks, mesh
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("cases", nargs="*", default=["a", "b"])
+    parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--max-iterations", type=int, default=10)
+    args = parser.parse_args(argv)
+    rows = []
+    for case in args.cases:
+        picks, mesh = make_line(case)
+        start = gradient_start(picks, mesh)
+        lines = []
+        settings = InversionSettings(workers=args.workers, max_iterations=args.max_iterations)
+        t0 = time.perf_counter()
+        last = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "pass_wall_s": 0.0, "passes": 0}
+
+        def progress(info):
+            tm = info.timing
+            d = {k: tm[k] - last[k] for k in last}
+            last.update({k: tm[k] for k in last})
+            # worker times are CPU-seconds summed over processes; scale them to the
+            # wall time of the passes so the columns add up
+            cpu = d["forward_s"] + d["rays_s"]
+            f = d["pass_wall_s"] / cpu if cpu > 0 else 0.0
+            lines.append((info.iteration, d["passes"], d["forward_s"] * f, d["rays_s"] * f, d["solve_s"], info.chi2))
+            print(f"  ({case}) {info}", file=sys.stderr)
+
+        run = invert(picks, mesh, start, settings, progress=progress)
+        total = time.perf_counter() - t0
+        # the plain forward solves the run needed: one per pass, at the final model
+        slow = mesh.cells_to_nodes(np.where(mesh.ground, 1.0 / np.nan_to_num(run.velocity, nan=1.0), 0.0))
+        t1 = time.perf_counter()
+        travel_times(mesh, slow, picks, workers=args.workers, reciprocity=True)
+        one = time.perf_counter() - t1
+        peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+        peak_child_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+        print(f"\ncase ({case}): {len(picks)} picks, {len(picks.sources()[0])} shots; mesh {mesh.describe()}")
+        print(f"{'iter':>4} {'passes':>6} {'forward s':>10} {'rays s':>8} {'solve s':>8} {'chi2':>8}")
+        for it, n, fw, ry, so, c2 in lines:
+            print(f"{it:>4} {n:>6} {fw:>10.2f} {ry:>8.2f} {so:>8.2f} {c2:>8.3f}")
+        passes = run.timing["passes"]
+        print(f"stop: {run.stop_reason} after {run.iterations} iterations, chi2 {run.chi2:.3f}, RMS {run.rms_ms:.3f} ms")
+        print(f"total {total:.1f} s; {passes} forward passes x {one:.2f} s plain forward = {passes * one:.1f} s "
+              f"-> ratio {total / (passes * one):.2f} (goal <= 2)")
+        print(f"peak memory: main process {peak_mb:.0f} MB, largest worker {peak_child_mb:.0f} MB")
+        rows.append((case, len(picks), run.iterations, total, passes * one, total / (passes * one),
+                     max(peak_mb, peak_child_mb)))
+    print(f"\n{'case':>4} {'picks':>6} {'iter':>4} {'total s':>8} {'fwd s':>7} {'ratio':>6} {'peak MB':>8}")
+    for r in rows:
+        print(f"{r[0]:>4} {r[1]:>6} {r[2]:>4} {r[3]:>8.1f} {r[4]:>7.1f} {r[5]:>6.2f} {r[6]:>8.0f}")
+
+
+if __name__ == "__main__":
+    main()

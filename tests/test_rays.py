@@ -1,0 +1,102 @@
+"""Ray paths and the sensitivity matrix against closed forms and finite differences."""
+
+import numpy as np
+import pytest
+
+from tomo.forward import sample_field, solve_field
+from tomo.mesh import build_mesh
+from tomo.rays import trace_rays
+from tomo.survey import flat_terrain
+
+CELL = 1.0
+SOURCE_X = 2.0
+RECEIVERS = np.arange(4.0, 48.0, 2.0)
+
+
+@pytest.fixture(scope="module")
+def mesh():
+    return build_mesh(0.0, 48.0, flat_terrain(-20.0, 70.0), CELL, 16.0, refine=2, padding=2.0)
+
+
+def test_straight_rays_in_a_homogeneous_medium(mesh):
+    v = 1000.0
+    field = solve_field(mesh, np.full(mesh.node_shape, 1.0 / v), SOURCE_X, -3.0)
+    rz = np.zeros_like(RECEIVERS)
+    rays = trace_rays(mesh, field, RECEIVERS, rz, keep_paths=True)
+    # In a homogeneous medium rays are straight lines (Fermat's principle; Cerveny 2001,
+    # Seismic Ray Theory, sec. 3.1). Tolerance: half a model cell (issue 4).
+    for x, path in zip(RECEIVERS, rays.paths):
+        a = np.array([x, 0.0])
+        b = np.array([SOURCE_X, -3.0])
+        d = b - a
+        # distance of every ray point from the straight line a-b
+        off = np.abs(d[0] * (path[:, 1] - a[1]) - d[1] * (path[:, 0] - a[0])) / np.hypot(*d)
+        assert off.max() <= 0.5 * CELL
+        assert np.allclose(path[-1], b)
+    # Path length x slowness = travel time (t = L / v in a homogeneous medium, by
+    # definition of velocity): against the exact time r / v of the straight line, to
+    # 0.2 % (the ray's length is a sum of steps along a slightly wavering path) ...
+    dist = np.hypot(RECEIVERS - SOURCE_X, 3.0)
+    assert np.allclose(rays.length / v, dist / v, rtol=2e-3)
+    # ... and against the fast-marching time itself, to the solver's accuracy target for
+    # smooth models: 0.5 % of the time or 0.2 ms, whichever is larger (issue 2, measured
+    # in tests/test_forward.py)
+    t = sample_field(mesh, field, RECEIVERS, rz)
+    assert np.all(np.abs(rays.length / v - t) <= np.maximum(5e-3 * t, 2e-4))
+    # rows of the matrix book the whole length to model cells: they sum to it
+    assert np.allclose(np.asarray(rays.matrix.sum(axis=1)).ravel(), rays.length)
+    assert np.isclose(rays.coverage(mesh).sum(), rays.length.sum())
+
+
+def test_circular_arcs_in_a_linear_gradient(mesh):
+    # v(z) = v0 + k depth: rays are circular arcs whose centres lie at the level where
+    # the velocity extrapolates to zero, depth -v0/k (Slotnick 1959, Lessons in Seismic
+    # Computing, SEG; restated in Fomel, Luo & Zhao 2009, J. Comput. Phys. 228).
+    v0, k = 500.0, 10.0
+    depth = np.maximum(-mesh.node_z, 0.0)[:, None] + 0.0 * mesh.node_x[None, :]
+    field = solve_field(mesh, 1.0 / (v0 + k * depth), SOURCE_X, 0.0)
+    rz = np.zeros_like(RECEIVERS)
+    rays = trace_rays(mesh, field, RECEIVERS, rz, keep_paths=True)
+    for x, path in zip(RECEIVERS, rays.paths):
+        half = 0.5 * (x - SOURCE_X)
+        centre = np.array([SOURCE_X + half, v0 / k])  # elevation v0/k above the surface
+        radius = np.hypot(half, v0 / k)
+        off = np.abs(np.hypot(path[:, 0] - centre[0], path[:, 1] - centre[1]) - radius)
+        # Tolerance: a quarter of a model cell; the ray follows a gradient interpolated
+        # between nodes half a cell apart, with steps of one cell (measured 0.19 m).
+        assert off.max() <= 0.25 * CELL, (x, off.max())
+        # deepest point: the turning depth of the circle, radius - v0/k
+        turning = radius - v0 / k
+        assert abs(-path[:, 1].min() - turning) <= 0.25 * CELL
+
+
+def _cells_times(mesh, cell_slowness, rz):
+    field = solve_field(mesh, mesh.cells_to_nodes(cell_slowness), SOURCE_X, 0.0)
+    return sample_field(mesh, field, RECEIVERS, rz), field
+
+
+@pytest.mark.parametrize("where", ["overburden block", "refractor block", "smooth everywhere"])
+def test_sensitivity_matrix_matches_finite_differences(mesh, where):
+    # Two layers, 700 over 1500 m/s at 3 m: direct, refracted and diving paths.
+    rz = np.zeros_like(RECEIVERS)
+    s = np.where(mesh.depth > 3.0, 1.0 / 1500.0, 1.0 / 700.0)
+    t1, field = _cells_times(mesh, s, rz)
+    rays = trace_rays(mesh, field, RECEIVERS, rz)
+    ds = np.zeros(mesh.shape)
+    if where == "overburden block":
+        ds[4:7, 10:30] = 0.01 * s[4:7, 10:30]
+    elif where == "refractor block":
+        ds[8:12, 15:40] = 0.01 * s[8:12, 15:40]
+    else:
+        rng = np.random.default_rng(3)
+        ds = 0.01 * s * (1.0 + 0.5 * np.sin(mesh.x / 7.0)[None, :] * rng.uniform(0.8, 1.2))
+    ds = np.where(mesh.ground, ds, 0.0)
+    t2, _ = _cells_times(mesh, s + ds, rz)
+    fd = t2 - t1
+    predicted = rays.matrix @ ds.ravel()
+    # First-order time change = integral of the slowness change along the ray (Fermat's
+    # principle; Nolet 2008, A Breakdown of Seismic Tomography, sec. 2.6). Issue 4 asks for
+    # the prediction within 5 % of the finite difference of the forward solver; measured
+    # over all picks (relative L2 norm), since a pick whose ray grazes the block edge has
+    # a tiny change whose relative error means little.
+    assert np.linalg.norm(predicted - fd) <= 0.05 * np.linalg.norm(fd)
