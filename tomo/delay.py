@@ -250,6 +250,7 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
         j = k - 1  # refractor number
         vk_line = velocities[k - 1]
         collected = {"plus-minus": {}, "grm": {}}
+        candidates = []
         for fa, la in zip(result.sides, result.layer_of_branch):
             if not fa.ok or fa.side != 1:
                 continue
@@ -270,36 +271,50 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
                 if common.size < 2:
                     continue
                 length = fb.shot_x - fa.shot_x
-                t_ab, t_ab_source = _reciprocal_time(picks, fa.shot_x, fb.shot_x, xa, ta, xb, tb, ba, bb, length, spacing)
-                sig_ab = float(np.median(np.concatenate([siga, sigb])))
+                t_ab, t_ab_source = _reciprocal_time(fa.shot_x, fb.shot_x, xa, ta, xb, tb, ba, bb, length, spacing)
                 plus, minus, v_pm, dv_pm = plus_minus_times(common, ta[ia], tb[ib], t_ab)
-                v_used, dv = v_pm, dv_pm
-                if not (math.isfinite(v_pm) and v_pm > velocities[k - 2] and 0.67 < v_pm / vk_line < 1.5):
-                    if common.size >= 3:
-                        warnings.append(f"refractor {j}, shots at {fa.shot_x:g} and {fb.shot_x:g} m: minus-time velocity "
-                                        f"{v_pm:.0f} m/s is implausible; the line velocity {vk_line:.0f} m/s is used")
-                    v_used, dv = vk_line, float("nan")
-                upper = _upper_thicknesses(result, depth_at, j, common, interface_depths)
-                vs_above = velocities[:k - 1]
-                depth = depth_from_time_depth(0.5 * plus, vs_above, v_used, upper)
-                sig_plus = np.sqrt(siga[ia] ** 2 + sigb[ib] ** 2 + sig_ab**2)
-                unc = _uncertainty(0.5 * plus, 0.5 * sig_plus, vs_above, v_used, dv, upper)
-                pair = {"refractor": j, "shot_left_x": fa.shot_x, "shot_right_x": fb.shot_x,
-                        "n_geophones": int(common.size), "reciprocal_time_ms": t_ab * 1e3,
-                        "reciprocal_time_from": t_ab_source,
-                        "minus_time_velocity_m_s": v_pm if math.isfinite(v_pm) else None,
-                        "velocity_used_m_s": v_used}
-                for x, d, u in zip(common, depth, unc):
-                    collected["plus-minus"].setdefault(float(x), []).append((float(d), float(u), v_used))
-                if grm:
-                    fa_i, fb_i = _interp_fn(xa, ta), _interp_fn(xb, tb)
-                    g = _grm_pair(common, fa_i, fb_i, t_ab, vs_above, upper_fn=lambda xs: _upper_thicknesses(
-                        result, depth_at, j, xs, interface_depths), xy_fixed=grm_xy_m, sig=sig_ab)
-                    if g is not None:
-                        pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"]})
-                        for x, d, u in zip(g["x"], g["depth"], g["unc"]):
-                            collected["grm"].setdefault(float(x), []).append((float(d), float(u), g["v_prime"]))
-                pairs_info.append(pair)
+                candidates.append((fa, fb, sa, sb, common, ia, ib, t_ab, t_ab_source, plus, v_pm, dv_pm))
+        # one refractor velocity for all pairs: the minus-time velocities weighted by
+        # their variances (Hagedoorn 1959 uses the minus-time slope; pooling the pairs
+        # keeps short pairs from carrying their own poorly determined velocity)
+        good = [(c[10], c[11]) for c in candidates
+                if math.isfinite(c[10]) and math.isfinite(c[11]) and c[11] > 0 and c[10] > velocities[k - 2]]
+        if good:
+            wv = np.array([1.0 / dv**2 for _, dv in good])
+            v_pool = float(np.sum(wv * np.array([v for v, _ in good])) / wv.sum())
+            dv_pool = float(1.0 / math.sqrt(wv.sum()))
+        else:
+            v_pool, dv_pool = float("nan"), float("nan")
+        if not (math.isfinite(v_pool) and v_pool > velocities[k - 2] and 0.67 < v_pool / vk_line < 1.5):
+            if candidates:
+                warnings.append(f"refractor {j}: minus-time velocity {v_pool:.0f} m/s is implausible or missing; "
+                                f"the line velocity {vk_line:.0f} m/s is used")
+            v_pool, dv_pool = vk_line, float("nan")
+        for fa, fb, sa, sb, common, ia, ib, t_ab, t_ab_source, plus, v_pm, dv_pm in candidates:
+            ba, xa, ta, siga = sa
+            bb, xb, tb, sigb = sb
+            sig_ab = float(np.median(np.concatenate([siga, sigb])))
+            upper = _upper_thicknesses(result, depth_at, j, common, interface_depths)
+            vs_above = velocities[:k - 1]
+            depth = depth_from_time_depth(0.5 * plus, vs_above, v_pool, upper)
+            sig_plus = np.sqrt(siga[ia] ** 2 + sigb[ib] ** 2 + sig_ab**2)
+            unc = _uncertainty(0.5 * plus, 0.5 * sig_plus, vs_above, v_pool, dv_pool, upper)
+            pair = {"refractor": j, "shot_left_x": fa.shot_x, "shot_right_x": fb.shot_x,
+                    "n_geophones": int(common.size), "reciprocal_time_ms": t_ab * 1e3,
+                    "reciprocal_time_from": t_ab_source,
+                    "minus_time_velocity_m_s": v_pm if math.isfinite(v_pm) else None,
+                    "velocity_used_m_s": v_pool}
+            for x, d, u in zip(common, depth, unc):
+                collected["plus-minus"].setdefault(float(x), []).append((float(d), float(u), v_pool))
+            if grm:
+                fa_i, fb_i = _interp_fn(xa, ta), _interp_fn(xb, tb)
+                g = _grm_pair(common, fa_i, fb_i, t_ab, vs_above, upper_fn=lambda xs: _upper_thicknesses(
+                    result, depth_at, j, xs, interface_depths), xy_fixed=grm_xy_m, sig=sig_ab)
+                if g is not None:
+                    pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"]})
+                    for x, d, u in zip(g["x"], g["depth"], g["unc"]):
+                        collected["grm"].setdefault(float(x), []).append((float(d), float(u), g["v_prime"]))
+            pairs_info.append(pair)
         if not collected["plus-minus"]:
             warnings.append(f"refractor {j} (top of layer {k}): no reversed pair of shots records it at common geophones; "
                             f"no delay-time depths (the intercept-time depths under the shots stand alone)")
@@ -333,16 +348,20 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
         pairs=pairs_info, warnings=warnings)
 
 
-def _reciprocal_time(picks, xa_shot, xb_shot, xa, ta, xb, tb, ba, bb, length, spacing):
-    """t_AB from head-wave picks at the other shot when they exist, else from the branch lines."""
-    tol = 0.25 * spacing
+def _reciprocal_time(xa_shot, xb_shot, xa, ta, xb, tb, ba, bb, length, spacing):
+    """t_AB, the head-wave time between the shots of a pair.
+
+    From the head-wave pick of each shot nearest the other shot when it lies within one
+    geophone spacing of it, moved to the shot along the branch slope (reciprocity makes
+    the two estimates equal; their mean is used); else from the two branch lines.
+    """
     measured = []
-    near_b = np.abs(xa - xb_shot) <= tol
-    if np.any(near_b):
-        measured.append(float(ta[near_b][0]) + ba.slowness_s_m * (xb_shot - float(xa[near_b][0])))
-    near_a = np.abs(xb - xa_shot) <= tol
-    if np.any(near_a):
-        measured.append(float(tb[near_a][0]) + bb.slowness_s_m * (float(xb[near_a][0]) - xa_shot))
+    k = int(np.argmin(np.abs(xa - xb_shot)))
+    if abs(xa[k] - xb_shot) <= 1.01 * spacing:
+        measured.append(float(ta[k]) + ba.slowness_s_m * (xb_shot - float(xa[k])))
+    k = int(np.argmin(np.abs(xb - xa_shot)))
+    if abs(xb[k] - xa_shot) <= 1.01 * spacing:
+        measured.append(float(tb[k]) + bb.slowness_s_m * (float(xb[k]) - xa_shot))
     if measured:
         return float(np.mean(measured)), "picks"
     return 0.5 * (float(ba.time(length)) + float(bb.time(length))), "branch lines"

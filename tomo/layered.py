@@ -480,11 +480,15 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         for side, vals in dirs.items():
             ws = np.array([w for _, w, _ in vals])
             mean_s[side] = (float(np.sum(ws * np.array([x for x, _, _ in vals])) / ws.sum()), float(1 / math.sqrt(ws.sum())))
-        if pair_v and 1 in mean_s and -1 in mean_s and 1 / mean_s[1][0] > v1 and 1 / mean_s[-1][0] > v1:
+        if 1 in mean_s and -1 in mean_s and 1 / mean_s[1][0] > v1 and 1 / mean_s[-1][0] > v1:
             v = dipping_refractor(v1, 1 / mean_s[1][0], 1 / mean_s[-1][0])["velocity_m_s"]
             # one sigma from the slowness errors (the formula is close to the harmonic mean)
             sig = float(v * v * 0.5 * math.hypot(mean_s[1][1], mean_s[-1][1]))
             reversed_ = True
+            if not pair_v:
+                warnings.append(f"layer {k} ({v:.0f} m/s) is seen in both directions but over different parts "
+                                f"of the line (no common coverage): its velocity assumes one plane refractor "
+                                f"and no dip is computed")
         elif seen:
             v = float(1.0 / np.mean(1.0 / np.asarray(seen)))
             sig = None
