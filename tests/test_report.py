@@ -1,0 +1,113 @@
+"""tomo report: one self-contained HTML file with every figure and the cautions."""
+
+from __future__ import annotations
+
+import base64
+import re
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from tomo.cli import main
+from tomo.figures.bundle import FIGURES
+from tomo.report import CAUTIONS, reciprocal_pairs
+from tomo.runfile import write_run
+
+from _runs import make_run
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+
+
+@pytest.fixture(scope="module")
+def reports(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    out = {}
+    for layered in (True, False):
+        run, _, _ = make_run(layered=layered)
+        path = folder / f"run_{layered}.h5"
+        write_run(path, run)
+        html_path = folder / f"report_{layered}.html"
+        assert main(["report", str(path), "--out", str(html_path)]) == 0
+        out[layered] = (run, html_path.read_text(encoding="utf-8"))
+    return out
+
+
+def _images(text):
+    return re.findall(r'src="data:image/png;base64,([A-Za-z0-9+/=]+)"', text)
+
+
+def test_report_holds_every_figure_as_embedded_png(reports):
+    run, text = reports[True]
+    images = _images(text)
+    assert len(images) == len(FIGURES)
+    for data in images:
+        assert base64.b64decode(data)[:8] == PNG_SIGNATURE
+    for spec in FIGURES:
+        assert f'id="fig-{spec.name}"' in text
+
+
+def test_report_is_self_contained(reports):
+    for _, text in reports.values():
+        assert "<script" not in text and "<link" not in text
+        assert not re.search(r'src="(?!data:)', text)  # every image inline
+        assert "http://" not in text and "https://" not in text
+
+
+def test_report_carries_the_cautions(reports):
+    for _, text in reports.values():
+        low = text.lower()
+        for head, _ in CAUTIONS:
+            assert head.lower() in low
+        for words in ("non-unique", "hidden layer", "velocity inversion", "rock type", "rippab",
+                      "borehole", "licensed professional", "local codes", "increases with depth"):
+            assert words in low, words
+
+
+def test_report_sections_and_numbers(reports):
+    run, text = reports[True]
+    for heading in ("Input summary", "Pick quality", "Settings", "Layered interpretation", "Final misfit",
+                    "Figures", "Interpretation cautions"):
+        assert heading in text
+    assert "<td>Picks</td><td>36</td>" in text
+    assert "3 (x = -2 to 35 m)" in text          # shots
+    assert "12 (x = 0 to 33 m" in text           # geophones
+    assert f"<b>{run.chi2:.2f}</b>" in text and f"<b>{run.rms_ms:.2f} ms</b>" in text
+    assert "510" in text and "1480" in text      # the layered table
+    assert "made-up warning for the report test" in text
+    assert "max_iterations" in text              # settings
+
+
+def test_report_without_layered_result_says_so(reports):
+    _, text = reports[False]
+    assert len(_images(text)) == len(FIGURES) - 1
+    assert "holds no layered interpretation" in text
+    assert "comparison is left out" in text
+
+
+def test_reciprocal_pairs_flag_beyond_tolerance():
+    run, _, _ = make_run(layered=False)
+    # two shots at geophone positions 0 and 33 m recorded at each other's position
+    picks = {"source_x": np.array([0.0, 33.0, 0.0]), "receiver_x": np.array([33.0, 0.0, 15.0]),
+             "source_z": np.zeros(3), "receiver_z": np.zeros(3),
+             "observed_ms": np.array([20.0, 21.5, 10.0]), "computed_ms": np.array([20.5, 20.5, 10.0]),
+             "sigma_ms": np.full(3, 0.3)}
+    pairs = reciprocal_pairs(replace(run, picks=picks))
+    assert len(pairs) == 1
+    p = pairs[0]
+    assert p["diff_ms"] == pytest.approx(-1.5)
+    # tolerance: the larger of max(1 ms, 2 sigma) and 2 % of the time (common practice:
+    # reciprocal times agree within 1-2 ms or a few per cent)
+    assert p["limit_ms"] == pytest.approx(max(1.0, 2 * 0.3, 0.02 * 21.5))
+    assert p["flagged"]
+
+
+def test_report_to_missing_folder(tmp_path, capsys):
+    run, _, _ = make_run(layered=False)
+    path = tmp_path / "run.h5"
+    write_run(path, run)
+    out = tmp_path / "nowhere" / "report.html"
+    assert main(["report", str(path), "--out", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "output folder does not exist" in err
+    assert not out.exists()
