@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_side_robust", "fit_shots", "shot_sides",
+__all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_side_robust", "pick_sigma", "model_time", "fit_shots", "shot_sides",
            "MAX_BRANCHES", "DEFAULT_SIGMA_MS"]
 
 #: Most branches fitted on one side (five layers is more than shallow refraction resolves).
@@ -227,6 +227,16 @@ class SideProblem:
     sigma_s: np.ndarray
 
 
+def pick_sigma(picks, sigma_ms=DEFAULT_SIGMA_MS):
+    """Pick sigmas (s): the file's where given and positive, else ``sigma_ms`` (ms)."""
+    sigma = np.full(len(picks), sigma_ms * 1e-3)
+    if picks.sigma_s is not None:
+        # a zero or missing sigma (possible from Python, not from a file) takes the default
+        good = np.isfinite(picks.sigma_s) & (picks.sigma_s > 0)
+        sigma = np.where(good, picks.sigma_s, sigma)
+    return sigma
+
+
 def shot_sides(picks, sigma_ms=DEFAULT_SIGMA_MS):
     """Split picks into shot sides, each sorted by |offset|.
 
@@ -236,10 +246,7 @@ def shot_sides(picks, sigma_ms=DEFAULT_SIGMA_MS):
         In order of shot x, left side before right side; only sides with picks.
     """
     src, src_index = picks.sources()
-    if picks.sigma_s is not None:
-        sigma = picks.sigma_s
-    else:
-        sigma = np.full(len(picks), sigma_ms * 1e-3)
+    sigma = pick_sigma(picks, sigma_ms)
     offset = picks.offset
     out = []
     for k, (sx, sz) in enumerate(src):

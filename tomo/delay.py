@@ -223,12 +223,13 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
     -------
     RefractorProfile
     """
+    from .branches import pick_sigma
     from .layered import interface_depths
 
     velocities = [lay["velocity_m_s"] for lay in result.layers]
     n_layers = len(velocities)
     sigma_default = float(result.options.get("sigma_ms", 0.5)) * 1e-3
-    sig = picks.sigma_s if picks.sigma_s is not None else np.full(len(picks), sigma_default)
+    sig = pick_sigma(picks, sigma_default * 1e3)
     rx = np.round(picks.receiver_x, 3)
     spacing = float(np.median(np.diff(np.unique(rx)))) if np.unique(rx).size > 1 else 1.0
     surface = {}

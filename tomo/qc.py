@@ -162,7 +162,6 @@ def check_line(picks, reciprocal_tol_ms=RECIPROCAL_TOL_MS, reciprocal_tol_pct=RE
     gaps = np.diff(gx)
     spacing = float(np.median(gaps)) if gaps.size else float("nan")
     spacing_range = (float(gaps.min()), float(gaps.max())) if gaps.size else (float("nan"), float("nan"))
-    sig = picks.sigma_s if picks.sigma_s is not None else np.full(len(picks), sigma_ms * 1e-3)
     shots = []
     for k, (sx, _) in enumerate(src):
         off = picks.offset[src_index == k]
