@@ -127,7 +127,7 @@ class InversionSettings:
     default_sigma_ms: float = 1.0
     parameter: str = "logv"
     smooth_x: float = 1.0
-    smooth_z: float = 0.5
+    smooth_z: float = 0.3
     damping: float = 0.05
     lambda_start: float = 1.0
     lambda_cooling: float = 0.5
