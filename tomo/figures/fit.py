@@ -68,11 +68,11 @@ def residual_figure(run, title="Residuals (observed - computed)"):
             label="pick")
     if outlier.any():
         ax.plot(offset[outlier], r[outlier], "x", ms=4.5, color=style.PALETTE[3], mew=1.2,
-                label=f"beyond 3 sigma ({int(outlier.sum())})")
+                label=f"beyond 3 σ ({int(outlier.sum())})")
     if np.isfinite(sigma_typ):
         for s, ls in ((1, "--"), (-1, "--")):
             ax.axhline(s * sigma_typ, color=style.BLACK, lw=0.8, ls=ls)
-        ax.plot([], [], "--", color=style.BLACK, lw=0.8, label=f"+/- pick sigma ({sigma_typ:.2g} ms)")
+        ax.plot([], [], "--", color=style.BLACK, lw=0.8, label=f"± pick σ ({sigma_typ:.2g} ms)")
     ax.axhline(0.0, color=style.GREY, lw=0.8)
     ax.set_xlabel("Offset, geophone - shot (m)")
     ax.set_ylabel("Residual (ms)")
@@ -86,7 +86,7 @@ def residual_figure(run, title="Residuals (observed - computed)"):
         t = np.linspace(-lim, lim, 200)
         # normal probability density with the picks' standard deviation
         pdf = np.exp(-0.5 * (t / sigma_typ) ** 2) / (sigma_typ * np.sqrt(2 * np.pi))
-        ah.plot(pdf, t, color=style.PALETTE[3], lw=1.2, label="normal, pick sigma")
+        ah.plot(pdf, t, color=style.PALETTE[3], lw=1.2, label="normal, pick σ")
     ah.set_xlabel("Density (1/ms)")
     ah.tick_params(labelleft=False)
     ah.legend(loc="upper right", framealpha=0.9)

@@ -11,6 +11,7 @@ marks where the coverage thins out (:func:`tomo.export.investigation_elevation`)
 from __future__ import annotations
 
 import numpy as np
+from matplotlib import patheffects
 from matplotlib.colors import LogNorm
 from matplotlib.patches import Patch, PathPatch
 from matplotlib.path import Path as MplPath
@@ -211,6 +212,8 @@ def velocity_section(run, contours_m_s=None, vertical_exaggeration=None, title="
     levels = contour_levels(finite) if contours_m_s is None else np.asarray(contours_m_s, float)
     if levels.size and finite.size:
         cs = ax.contour(run.x, run.z, v, levels=levels, colors="white", linewidths=0.8, zorder=3)
+        # white on the dark end of the map, a thin dark edge for the light end
+        cs.set(path_effects=[patheffects.withStroke(linewidth=1.7, foreground="#333333")])
         cs.set_clip_path(clip)
         labels = ax.clabel(cs, fmt="%.0f", fontsize=7, inline=True, inline_spacing=2)
         for t in labels:
