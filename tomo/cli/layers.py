@@ -29,7 +29,7 @@ def register(sub):
                    help=f"most branches the criterion may choose (default {MAX_BRANCHES})")
     p.add_argument("--breaks", metavar="B1,B2,...", help="break offsets |x| (m) between branches on every side")
     p.add_argument("--side-branches", action="append", default=[], metavar="X:SIDE:N",
-                   help="branch count for one side: shot x (m), left|right, N (repeatable)")
+                   help="branch count for one side: shot x (m), left|right, N (repeatable; write --side-branches=-5:right:3 for a negative x)")
     p.add_argument("--side-breaks", action="append", default=[], metavar="X:SIDE:B1,B2",
                    help="break offsets (m) for one side (repeatable)")
     p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS,
