@@ -131,3 +131,15 @@ def test_shot_sides_and_per_side_options():
     assert np.all(np.diff(sides[0].offset_m) > 0)
     fits = fit_shots(picks, n_branches={(23.0, "left"): 1})
     assert [len(f.branches) for f in fits] == [1, 2]
+
+
+def test_curve_bending_the_wrong_way_is_warned():
+    # a faster branch followed by a slower one is not a layered ground with velocity
+    # increasing downward ([TGS]); the concave fit cannot follow it and says so
+    u = np.arange(1, 41) * 2.0
+    t = np.where(u < 30, u / 1500, 30 / 1500 + (u - 30) / 800) + np.random.default_rng(0).normal(0, 2e-4, u.size)
+    fit = fit_side(side(u, t))
+    assert any("bend the wrong way" in m for m in fit.messages)
+    # a normal concave curve does not trigger it
+    t3 = envelope(u, V3, T3) + np.random.default_rng(1).normal(0, 2e-4, u.size)
+    assert not any("wrong way" in m for m in fit_side(side(u, t3)).messages)

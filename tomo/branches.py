@@ -20,7 +20,7 @@ squared residuals divided by the pick variance, ``m`` the number of picks and ``
 number of free parameters (two per branch, one less when the first branch is held
 through the origin, plus one per break offset). Because ``chi2`` is scaled by the pick
 sigma, a break is only accepted when it lowers the misfit by several times the noise:
-with 24 picks one more branch must lower chi2 by ``3 ln 24 = 9.5``. The pick sigma comes
+with 24 picks one more branch must lower chi2 by ``3 ln 24 + 10 = 19.5``. The pick sigma comes
 from the pick file or, failing that, from the ``sigma_ms`` option (default 0.5 ms, the
 low end of usual pick errors, common practice); a sigma set too small makes the
 criterion accept spurious breaks, one set too large merges real branches. Because the
@@ -560,6 +560,16 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
             p = 3 * k - 1 - (1 if origin else 0)
             bic[k] = c + p * lnm
         fit.bic = bic
+        # a curve that bends the wrong way (a later branch slower) cannot be layered
+        # ground with velocity increasing downward: compare with splits free of the
+        # concavity constraint
+        free = _best_splits(chi2, slope, c0, s0, allowed, origin, -1e9)
+        free_bic = min(c + (3 * k - 1 - (1 if origin else 0)) * lnm for k, (c, _) in free.items()) if free else np.inf
+        if free_bic < min(bic.values()) - BIC_MARGIN:
+            fit.messages.append(
+                f"{fit.label}: the times bend the wrong way for layers (a later branch is slower than an "
+                f"earlier one): velocity decreasing with depth or a lateral change; the layered methods "
+                f"assume velocity increasing with depth and misread this side")
         if n_branches is not None:
             k = int(n_branches)
             if k not in splits:
