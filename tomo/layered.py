@@ -243,6 +243,10 @@ class LayeredResult:
         return np.array([np.nan if lay["thickness_m"] is None else lay["thickness_m"] for lay in self.layers[:-1]])
 
     def to_dict(self):
+        """Plain JSON-ready content (NaN and infinities become None)."""
+        return json_safe(self._to_dict())
+
+    def _to_dict(self):
         sides = []
         for fit, layers in zip(self.sides, self.layer_of_branch):
             d = fit.to_dict()
@@ -275,6 +279,20 @@ class LayeredResult:
             warnings=list(d.get("warnings", [])), messages=list(d.get("messages", [])),
             cautions=list(d.get("cautions", CAUTIONS)), options=dict(d.get("options", {})),
         )
+
+
+def json_safe(value):
+    """A copy of nested dicts/lists with NaN and infinities as None (JSON has neither)."""
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, dict):
+        return {k: json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_safe(v) for v in value]
+    return value
 
 
 def _near_shot(fit):
@@ -393,10 +411,23 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
             continue
         anchored = _near_shot(f) and f in near
         layer_of_branch.append(_align([b.velocity_m_s for b in f.branches], template, anchored))
+    # deeper layers seen only by the far (off-end) shots or beyond the common count: a
+    # last unmatched branch faster than the deepest layer, on at least two sides
+    deeper = []
+    for f, lob in zip(fits, layer_of_branch):
+        if f.ok and lob and lob[-1] == 0 and any(lob) and f.branches[-1].velocity_m_s > 1.1 * template[-1]:
+            deeper.append((f, lob))
+    if len(deeper) >= 2:
+        v_new = float(np.exp(np.median([math.log(f.branches[-1].velocity_m_s) for f, _ in deeper])))
+        template.append(v_new)
+        n_layers += 1
+        for f, lob in deeper:
+            lob[-1] = n_layers
     for f, lob in zip(fits, layer_of_branch):
         if f.ok and 0 in lob:
-            warnings.append(f"{f.label}: branch(es) {', '.join(str(b.index) for b, l in zip(f.branches, lob) if l == 0)} "
-                            f"match no layer of the line and are left out")
+            names = ", ".join(f"{b.index} ({b.velocity_m_s:.0f} m/s)" for b, l in zip(f.branches, lob) if l == 0)
+            warnings.append(f"{f.label}: branch(es) {names} match no layer of the line (too few sides see "
+                            f"such a layer) and are left out")
 
     def branch_of(f, lob, k):
         for b, layer in zip(f.branches, lob):
@@ -606,7 +637,8 @@ def interface_depths(result, x):
             d = np.full(x.size, default)
         prof = result.profile
         if prof is not None:
-            px, pd = prof.refractor_depths(k - 1)
+            # GRM where it was computed (it allows for the offset of the emergence points)
+            px, pd = prof.refractor_depths(k - 1, method="grm")
             if px.size >= 2:
                 inside = (x >= px.min()) & (x <= px.max())
                 d = np.where(inside, np.interp(x, px, pd), d)

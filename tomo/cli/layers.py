@@ -152,7 +152,7 @@ def run(args):
         from ..fileio import atomic_open
 
         with atomic_open(args.out, "w", encoding="utf-8") as out:
-            json.dump(_json_safe(result.to_dict()), out, indent=1)
+            json.dump(result.to_dict(), out, indent=1, allow_nan=False)
             out.write("\n")
         print(f"wrote {args.out}")
     if args.profile:
@@ -173,13 +173,3 @@ def run(args):
         print(f"wrote {args.figure}")
     return 0
 
-
-def _json_safe(value):
-    """NaN and infinity are not JSON: write them as null."""
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, dict):
-        return {k: _json_safe(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_json_safe(v) for v in value]
-    return value
