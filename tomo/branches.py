@@ -567,9 +567,10 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
         free_bic = min(c + (3 * k - 1 - (1 if origin else 0)) * lnm for k, (c, _) in free.items()) if free else np.inf
         if free_bic < min(bic.values()) - BIC_MARGIN:
             fit.messages.append(
-                f"{fit.label}: the times bend the wrong way for layers (a later branch is slower than an "
-                f"earlier one): velocity decreasing with depth or a lateral change; the layered methods "
-                f"assume velocity increasing with depth and misread this side")
+                f"{fit.label}: the times bend the wrong way for flat layers (a later stretch is slower "
+                f"than an earlier one): the refractor deepens away from the shot there, or the velocity "
+                f"changes laterally or decreases with depth; an irregular refractor can also pass for an "
+                f"extra layer (consider fixing the branch count)")
         if n_branches is not None:
             k = int(n_branches)
             if k not in splits:

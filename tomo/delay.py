@@ -28,6 +28,12 @@ when ``XY = 2 sum_i h_i tan(theta_in)`` (Palmer 1980); we find that XY as the fi
 this relation with the GRM depths themselves (starting from the plus-minus depths),
 averaged over the geophones.
 
+Reciprocal time. ``t_AB`` comes from the head-wave pick of each shot nearest the other
+shot (within one geophone spacing, moved along the branch slope). For a pair without
+one (off-end shots) it is chosen so that the pair's plus times agree, in the median,
+with those of pairs that have one, since the delay time under a geophone does not depend
+on the shot; failing that, from the branch lines, which assumes a plane refractor.
+
 Uncertainty. Linear propagation of the pick sigmas of ``t_AG``, ``t_BG`` and ``t_AB`` and
 of the standard error of the refractor velocity from the minus-time regression into the
 depth; it says nothing about hidden layers or velocity inversions, which bias depths.
@@ -275,6 +281,25 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
                 t_ab, t_ab_source = _reciprocal_time(fa.shot_x, fb.shot_x, xa, ta, xb, tb, ba, bb, length, spacing)
                 plus, minus, v_pm, dv_pm = plus_minus_times(common, ta[ia], tb[ib], t_ab)
                 candidates.append((fa, fb, sa, sb, common, ia, ib, t_ab, t_ab_source, plus, v_pm, dv_pm))
+        # A pair without a measured reciprocal time (off-end shots) gets the t_AB that makes
+        # its plus times agree, in the median, with those of the pairs that have one at
+        # common geophones: the delay time under a geophone does not depend on the shots
+        # (Hagedoorn 1959). Failing that, t_AB stays from the branch lines.
+        ref = {}
+        for c in candidates:
+            if c[8] == "picks":
+                for x, pl in zip(c[4], c[9]):
+                    ref.setdefault(float(x), []).append(float(pl))
+        for n, c in enumerate(candidates):
+            if c[8] == "picks":
+                continue
+            fa, fb, sa, sb, common, ia, ib = c[:7]
+            shared = [i for i, x in enumerate(common) if float(x) in ref]
+            if len(shared) >= 2:
+                sum_t = sa[2][ia] + sb[2][ib]
+                t_ab = float(np.median([sum_t[i] - np.mean(ref[float(common[i])]) for i in shared]))
+                plus, minus, v_pm, dv_pm = plus_minus_times(common, sa[2][ia], sb[2][ib], t_ab)
+                candidates[n] = (fa, fb, sa, sb, common, ia, ib, t_ab, "matched to reciprocal pairs", plus, v_pm, dv_pm)
         # one refractor velocity for all pairs: the minus-time velocities weighted by
         # their variances (Hagedoorn 1959 uses the minus-time slope; pooling the pairs
         # keeps short pairs from carrying their own poorly determined velocity)

@@ -384,7 +384,15 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                      max_branches=max_branches, through_origin=through_origin, min_contrast=min_contrast,
                      outlier_sigma=outlier_sigma)
     messages = [m for f in fits for m in f.messages if not f.ok]
-    warnings = [m for f in fits for m in f.messages if f.ok]
+    warnings = [m for f in fits for m in f.messages if f.ok and "bend the wrong way" not in m]
+    bent = [f for f in fits if f.ok and any("bend the wrong way" in m for m in f.messages)]
+    if len(bent) == 1:
+        warnings.extend(m for m in bent[0].messages if "bend the wrong way" in m)
+    elif bent:
+        warnings.append(f"{len(bent)} shot sides ({', '.join(f'{f.shot_x:g} m ' + ('right' if f.side > 0 else 'left') for f in bent)}) "
+                        f"have times that bend the wrong way for flat layers (a later stretch slower than an earlier "
+                        f"one): an irregular or dipping refractor, or velocity changing laterally or decreasing with "
+                        f"depth; an irregular refractor can also pass for an extra layer (consider fixing the branch count)")
     src, src_index = picks.sources()
     for k, (sx, _) in enumerate(src):
         off = picks.offset[src_index == k]

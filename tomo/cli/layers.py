@@ -131,6 +131,31 @@ def run(args):
     result = interpret_line(picks, terrain=terrain, **options)
     for message in result.messages:
         note(message)
+    # outputs first, so that a closed stdout cannot lose them
+    written = []
+    if args.out:
+        from ..fileio import atomic_open
+
+        with atomic_open(args.out, "w", encoding="utf-8") as out:
+            json.dump(result.to_dict(), out, indent=1, allow_nan=False)
+            out.write("\n")
+        written.append(f"wrote {args.out}")
+    if args.profile:
+        from ..delay import RefractorProfile, write_profile_csv
+        import numpy as np
+
+        prof = result.profile
+        if prof is None:
+            empty = np.zeros(0)
+            prof = RefractorProfile(np.zeros(0, int), empty, empty, empty, empty, empty, empty, np.zeros(0, object))
+            note("no delay-time profile (no refractor reversed at common geophones); the profile file has a header only")
+        write_profile_csv(args.profile, prof)
+        written.append(f"wrote {args.profile} ({len(prof)} rows)")
+    if args.figure:
+        from ..figures.curves import branches_figure
+
+        branches_figure(result, args.figure, picks=picks)
+        written.append(f"wrote {args.figure}")
     print("layer  velocity (m/s)  thickness (m)  depth to top (m)  reversed")
     for k, lay in enumerate(result.layers, start=1):
         h = "-" if lay["thickness_m"] is None else f"{lay['thickness_m']:.2f}"
@@ -148,28 +173,7 @@ def run(args):
         print(f"warning: {w}")
     for c in result.cautions:
         print(f"caution: {c}")
-    if args.out:
-        from ..fileio import atomic_open
-
-        with atomic_open(args.out, "w", encoding="utf-8") as out:
-            json.dump(result.to_dict(), out, indent=1, allow_nan=False)
-            out.write("\n")
-        print(f"wrote {args.out}")
-    if args.profile:
-        from ..delay import RefractorProfile, write_profile_csv
-        import numpy as np
-
-        prof = result.profile
-        if prof is None:
-            empty = np.zeros(0)
-            prof = RefractorProfile(np.zeros(0, int), empty, empty, empty, empty, empty, empty, np.zeros(0, object))
-            note("no delay-time profile (no refractor reversed at common geophones); the profile file has a header only")
-        write_profile_csv(args.profile, prof)
-        print(f"wrote {args.profile} ({len(prof)} rows)")
-    if args.figure:
-        from ..figures.curves import branches_figure
-
-        branches_figure(result, args.figure, picks=picks)
-        print(f"wrote {args.figure}")
+    for line in written:
+        print(line)
     return 0
 

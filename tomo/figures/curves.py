@@ -58,7 +58,7 @@ def qc_figure(picks, report, path):
     ax.set_ylabel("First-arrival time (ms)")
     ax.set_ylim(bottom=0)
     ax.set_title(f"Pick QC: {report.n_shots} shots, {report.n_picks} picks "
-                 f"({len(report.outliers)} outliers, {report.n_flagged_reciprocals} reciprocal flags)")
+                 f"({len(report.outliers)} outlier(s), {report.n_flagged_reciprocals} reciprocal pair(s) flagged)")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=7)
     fig.tight_layout()
     return style.save(fig, path)
@@ -93,7 +93,10 @@ def branches_figure(result, path, picks=None, max_columns=3):
             ax.plot(xs, fit.times_s * 1e3, "o", ms=2.5, color=style.GREY, mfc="none", mew=0.6)
             if not fit.ok:
                 continue
-            edges = [0.0] + list(fit.crossovers_m) + [float(fit.offsets_m.max())]
+            # a held-through-origin direct wave starts at the shot; other first branches
+            # (off-end shots) start at their first pick
+            start = 0.0 if fit.branches[0].intercept_s == 0.0 else float(fit.offsets_m.min())
+            edges = [start] + list(fit.crossovers_m) + [float(fit.offsets_m.max())]
             for b, layer, u0, u1 in zip(fit.branches, lob, edges[:-1], edges[1:]):
                 u0, u1 = max(u0, 0.0), max(u1, 0.0)
                 colour = layer_colours[(max(layer, 1) - 1) % len(layer_colours)] if layer else style.BLACK
