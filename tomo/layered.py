@@ -26,7 +26,6 @@ by a licensed professional under local codes.
 
 from __future__ import annotations
 
-import itertools
 import math
 from dataclasses import dataclass, field
 
@@ -307,23 +306,30 @@ def _align(velocities, template, anchored):
     """Map a side's branch velocities to template layers, strictly increasing.
 
     Minimises the sum of |log(v/V)|; a branch left unmatched costs log(2.5). With
-    ``anchored`` the first branch is layer 1 (a direct wave).
-    Returns a list of 1-based layer indices (0 = unmatched).
+    ``anchored`` the first branch is layer 1 (a direct wave). Dynamic programming over
+    (branch, last layer used). Returns a list of 1-based layer indices (0 = unmatched).
     """
-    n_layers = len(template)
-    logs_t = np.log(template)
-    best, best_cost = None, np.inf
+    n_b, n_l = len(velocities), len(template)
     unmatched = math.log(2.5)
-    for choice in itertools.product(range(n_layers + 1), repeat=len(velocities)):
-        assigned = [c for c in choice if c > 0]
-        if any(b <= a for a, b in zip(assigned[:-1], assigned[1:])):
-            continue
-        if anchored and choice[0] != 1:
-            continue
-        cost = sum(unmatched if c == 0 else abs(math.log(v) - logs_t[c - 1]) for v, c in zip(velocities, choice))
-        if cost < best_cost - 1e-12:
-            best, best_cost = list(choice), cost
-    return best
+    cost = [[abs(math.log(v) - math.log(t)) for t in template] for v in velocities]
+    # best[b][l]: least cost for branches b.. given that layers 1..l are used up
+    best = [[0.0] * (n_l + 1) for _ in range(n_b + 1)]
+    choice = [[0] * (n_l + 1) for _ in range(n_b)]
+    for b in range(n_b - 1, -1, -1):
+        for l in range(n_l, -1, -1):
+            value, pick = unmatched + best[b + 1][l], 0
+            for m in range(l + 1, n_l + 1):
+                c = cost[b][m - 1] + best[b + 1][m]
+                if c < value - 1e-12:
+                    value, pick = c, m
+            best[b][l], choice[b][l] = value, pick
+    out, used = [], 0
+    for b in range(n_b):
+        pick = 1 if (anchored and b == 0) else choice[b][used]
+        out.append(pick)
+        if pick:
+            used = pick
+    return out
 
 
 def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma_ms=DEFAULT_SIGMA_MS,

@@ -133,6 +133,8 @@ def branches_figure(result, path, picks=None, max_columns=3):
                       label=f"layer {k + 1} ({lay['velocity_m_s']:.0f} m/s)") for k, lay in enumerate(result.layers)]
     handles += [Line2D([], [], ls="none", marker="o", mfc="none", color=style.GREY, ms=4, label="picks"),
                 Line2D([], [], ls="none", marker="D", mfc="white", color=style.BLACK, ms=4, label="crossover")]
+    if any(0 in lob for lob in result.layer_of_branch):
+        handles.append(Line2D([], [], color=style.BLACK, lw=1.4, label="branch matching no layer"))
     if picks is not None:
         handles.append(Line2D([], [], ls="none", marker="x", color=FLAG, ms=5, mew=1.4, label="left out (outlier)"))
     fig.legend(handles=handles, loc="lower center", ncol=min(len(handles), 4), frameon=False, fontsize=7,
