@@ -11,7 +11,7 @@ import pytest
 
 from tomo.cli import main
 from tomo.figures.bundle import FIGURES
-from tomo.report import CAUTIONS, reciprocal_pairs
+from tomo.report import CAUTIONS, pick_qc
 from tomo.runfile import write_run
 
 from _runs import make_run
@@ -85,21 +85,22 @@ def test_report_without_layered_result_says_so(reports):
     assert "comparison is left out" in text
 
 
-def test_reciprocal_pairs_flag_beyond_tolerance():
-    run, _, _ = make_run(layered=False)
+def test_pick_qc_is_that_of_tomo_check(reports):
+    from tomo.qc import RECIPROCAL_TOL_MS
+
+    run, text = reports[True]
     # two shots at geophone positions 0 and 33 m recorded at each other's position
-    picks = {"source_x": np.array([0.0, 33.0, 0.0]), "receiver_x": np.array([33.0, 0.0, 15.0]),
-             "source_z": np.zeros(3), "receiver_z": np.zeros(3),
-             "observed_ms": np.array([20.0, 21.5, 10.0]), "computed_ms": np.array([20.5, 20.5, 10.0]),
-             "sigma_ms": np.full(3, 0.3)}
-    pairs = reciprocal_pairs(replace(run, picks=picks))
-    assert len(pairs) == 1
-    p = pairs[0]
-    assert p["diff_ms"] == pytest.approx(-1.5)
-    # tolerance: the larger of max(1 ms, 2 sigma) and 2 % of the time (common practice:
-    # reciprocal times agree within 1-2 ms or a few per cent)
-    assert p["limit_ms"] == pytest.approx(max(1.0, 2 * 0.3, 0.02 * 21.5))
-    assert p["flagged"]
+    picks = {"source_x": np.array([0.0, 33.0, 0.0, 33.0]), "receiver_x": np.array([33.0, 0.0, 15.0, 15.0]),
+             "source_z": np.zeros(4), "receiver_z": np.zeros(4),
+             "observed_ms": np.array([20.0, 23.5, 10.0, 10.0]), "computed_ms": np.array([20.5, 20.5, 10.0, 10.0]),
+             "sigma_ms": np.full(4, 0.3)}
+    qc = pick_qc(replace(run, picks=picks))
+    assert len(qc.reciprocal_pairs) == 1
+    p = qc.reciprocal_pairs[0]
+    assert abs(p["difference_ms"]) == pytest.approx(3.5)
+    # beyond the tolerance of tomo check (2 ms or 3 %; common practice: 1-2 ms or a few per cent)
+    assert p["flagged"] and p["tolerance_ms"] == pytest.approx(max(RECIPROCAL_TOL_MS, 0.03 * 21.75))
+    assert "reciprocal pair" in text or "No reciprocal pairs" in text
 
 
 def test_report_to_missing_folder(tmp_path, capsys):

@@ -20,7 +20,7 @@ import numpy as np
 from . import __version__
 from .fileio import atomic_open
 
-__all__ = ["CAUTIONS", "reciprocal_pairs", "build_report", "write_report"]
+__all__ = ["CAUTIONS", "pick_qc", "build_report", "write_report"]
 
 #: Shown in every report; people act on these numbers.
 CAUTIONS = (
@@ -90,33 +90,17 @@ class _Raw(str):
     """HTML that is already escaped."""
 
 
-def reciprocal_pairs(run, tolerance_ms=None, tolerance_frac=0.02, position_tol_m=0.05):
-    """Reciprocal picks: the time from A to B against the time from B to A.
+def pick_qc(run):
+    """The pick QC of ``tomo check`` (:func:`tomo.qc.check_line`) on the run's picks."""
+    from .qc import check_line
+    from .survey import Picks
 
-    A pair exists where a shot at A was recorded at a geophone at (or within
-    ``position_tol_m`` of) shot B's position and the reverse. The tolerance defaults to
-    the larger of 1 ms (or twice the pick sigma) and 2 % of the time; reciprocal times
-    should agree within about 1-2 ms or a few per cent (common practice).
-
-    Returns a list of dicts ``a_x, b_x, t_ab_ms, t_ba_ms, diff_ms, limit_ms, flagged``.
-    """
     p = run.picks
-    sx, rx, t = p["source_x"], p["receiver_x"], p["observed_ms"]
     sigma = np.asarray(p["sigma_ms"], float)
-    shots = np.unique(np.round(sx, 3))
-    pairs = []
-    for i, a in enumerate(shots):
-        for b in shots[i + 1:]:
-            ab = np.flatnonzero((np.abs(sx - a) < position_tol_m) & (np.abs(rx - b) < position_tol_m))
-            ba = np.flatnonzero((np.abs(sx - b) < position_tol_m) & (np.abs(rx - a) < position_tol_m))
-            if ab.size and ba.size:
-                t1, t2 = float(t[ab[0]]), float(t[ba[0]])
-                s = np.nanmax([sigma[ab[0]], sigma[ba[0]], 0.0])
-                base = tolerance_ms if tolerance_ms is not None else max(1.0, 2.0 * s)
-                limit = max(base, tolerance_frac * max(t1, t2))
-                pairs.append({"a_x": float(a), "b_x": float(b), "t_ab_ms": t1, "t_ba_ms": t2,
-                              "diff_ms": t1 - t2, "limit_ms": limit, "flagged": abs(t1 - t2) > limit})
-    return pairs
+    picks = Picks(p["source_x"], p["source_z"], p["receiver_x"], p["receiver_z"],
+                  time_s=np.asarray(p["observed_ms"], float) * 1e-3,
+                  sigma_s=sigma * 1e-3 if np.all(np.isfinite(sigma) & (sigma > 0)) else None)
+    return check_line(picks)
 
 
 def _figure_png(fig, dpi=130):
@@ -159,20 +143,32 @@ def _mesh_text(run):
 
 def _qc_section(run):
     parts = []
-    pairs = reciprocal_pairs(run)
+    qc = pick_qc(run)
+    tol = qc.settings
+    pairs = qc.reciprocal_pairs
     if pairs:
-        flagged = sum(p["flagged"] for p in pairs)
+        flagged = qc.n_flagged_reciprocals
         parts.append(f"<p>{len(pairs)} reciprocal pair(s); {flagged} differ by more than the tolerance "
-                     "(the larger of 1 ms or twice the pick sigma, and 2 % of the time; common practice).</p>")
+                     f"({tol['reciprocal_tol_ms']:g} ms or {tol['reciprocal_tol_pct']:g} % of the time, whichever is "
+                     "larger; common practice), as <code>tomo check</code> reports them.</p>")
         rows = []
         for p in pairs:
             mark = _Raw('<span class="flag">check</span>') if p["flagged"] else "ok"
-            rows.append((f"{p['a_x']:g}", f"{p['b_x']:g}", f"{p['t_ab_ms']:.2f}", f"{p['t_ba_ms']:.2f}",
-                         f"{p['diff_ms']:+.2f}", f"{p['limit_ms']:.2f}", mark))
+            rows.append((f"{p['shot_a_x']:g}", f"{p['shot_b_x']:g}", f"{p['time_ab_ms']:.2f}", f"{p['time_ba_ms']:.2f}",
+                         f"{p['difference_ms']:+.2f}", f"{p['tolerance_ms']:.2f}", mark))
         parts.append(_table(["shot A x (m)", "shot B x (m)", "A to B (ms)", "B to A (ms)", "difference (ms)",
                              "tolerance (ms)", ""], rows, numeric=(0, 1, 2, 3, 4, 5)))
     else:
         parts.append('<p class="note">No reciprocal pairs: no shot was recorded at another shot\'s position.</p>')
+    parts.append(f"<p>Picks that break from their shot's branch (more than {tol['outlier_sigma']:g} robust sigmas): "
+                 f"{len(qc.outliers)}."
+                 + (" Shots with no reversed partner: " + ", ".join(f"{x:g} m" for x in qc.unreversed_shots) + "."
+                    if qc.unreversed_shots else " Every shot has a reversed partner.") + "</p>")
+    if qc.outliers:
+        rows = [(f"{o['shot_x']:g}", f"{o['receiver_x']:g}", f"{o['time_ms']:.2f}", f"{o['residual_ms']:+.2f}")
+                for o in qc.outliers[:20]]
+        parts.append(_table(["shot x (m)", "geophone x (m)", "time (ms)", "from branch (ms)"], rows,
+                            numeric=(0, 1, 2, 3)))
     r = run.residual_ms
     sigma = np.asarray(run.picks["sigma_ms"], float)
     out = np.flatnonzero(np.abs(r) > 3 * sigma)
