@@ -363,15 +363,29 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         more than this percentage of their mean (default 10 %, common practice: a dip or a
         lateral velocity change of that size matters to the interpretation).
     delay_times : bool
-        Compute the plus-minus profile (:func:`tomo.delay.plus_minus`).
+        Compute the plus-minus profile (:func:`tomo.delay.delay_time_profile`).
     grm : bool
-        Also compute the GRM profile (:func:`tomo.delay.grm`).
+        Also compute the GRM profile.
     grm_xy_m : float, optional
         GRM XY distance (m); default: the optimum found by the method.
 
     Returns
     -------
     LayeredResult
+
+    Notes
+    -----
+    Steps: branch fits per shot side (:mod:`tomo.branches`); line layers from the sides
+    that start with a direct wave, every side's branches matched to them by velocity
+    (off-end shots included, which may add a deeper layer seen by two sides or more);
+    layer velocities from the dipping-layer formula applied to the weighted mean
+    slowness of each shooting direction; thicknesses under each shot from the n-layer
+    intercept-time formula, averaged over the sides with weights from the intercept
+    errors; the delay-time profile (:mod:`tomo.delay`).
+
+    The intercept-time and dipping-layer formulas take shot and geophones on one level;
+    on uneven ground the delay-time profile, worked out geophone by geophone, is the
+    better guide. Velocity must increase with depth (module docstring).
     """
     if picks.time_s is None:
         raise InputError("picks have no times (a layout file?)", path=picks.path)
