@@ -22,6 +22,9 @@ from .fileio import atomic_open
 
 __all__ = ["CAUTIONS", "pick_qc", "build_report", "write_report"]
 
+#: Most layered-interpretation warnings listed in full (the rest are counted).
+MAX_WARNINGS = 12
+
 #: Shown in every report; people act on these numbers.
 CAUTIONS = (
     ("Non-uniqueness",
@@ -183,8 +186,12 @@ def _qc_section(run):
             parts.append(f'<p class="note">(largest 20 of {out.size} shown)</p>')
     warnings = (run.layered or {}).get("warnings") or []
     if warnings:
-        parts.append("<h3>Warnings from the layered interpretation</h3><ul>"
-                     + "".join(f"<li>{_esc(w if isinstance(w, str) else json.dumps(w))}</li>" for w in warnings)
+        shown = warnings[:MAX_WARNINGS]
+        more = len(warnings) - len(shown)
+        parts.append(f"<h3>Warnings from the layered interpretation ({len(warnings)})</h3><ul>"
+                     + "".join(f"<li>{_esc(w if isinstance(w, str) else json.dumps(w))}</li>" for w in shown)
+                     + (f"<li><i>... and {more} more: see the output of <code>tomo layers</code> or its "
+                        "layers.json.</i></li>" if more > 0 else "")
                      + "</ul>")
     return "\n".join(parts)
 
