@@ -84,7 +84,10 @@ def test_layers_writes_json_profile_and_figure(line_file, tmp_path, capsys):
     # h = T+ V1 V2 / (2 sqrt(V2^2 - V1^2))); the mean is held to 3 %, each to 10 %
     assert abs(depths.mean() / H - 1) < 0.03
     assert np.all(np.abs(depths / H - 1) < 0.10)
-    assert {r["method"] for r in rows} == {"plus-minus", "grm"}
+    # one row per geophone and refractor; the GRM depths in their own columns
+    assert len({(r["refractor"], r["x"]) for r in rows}) == len(rows)
+    grm = np.array([float(r["grm_depth_m"]) for r in rows if r["grm_depth_m"]])
+    assert grm.size > 10 and abs(grm.mean() / H - 1) < 0.03
     assert fig.exists() and fig.stat().st_size > 10_000
 
 

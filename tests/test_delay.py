@@ -160,5 +160,5 @@ def test_profile_elevations_follow_terrain(tmp_path):
     with open(path, newline="") as handle:
         rows = list(csv.reader(handle))
     assert rows[0][:5] == ["refractor", "x", "surface_z", "depth_m", "elevation_m"]
-    assert len(rows) == len(prof) + 1
+    assert len(rows) == len(prof) + 1  # plus-minus only: one row per geophone
     assert float(rows[1][3]) == pytest.approx(5.0, abs=0.01)

@@ -55,6 +55,9 @@ __all__ = ["RefractorProfile", "delay_time_profile", "depth_from_time_depth", "p
            "grm_times", "write_profile_csv"]
 
 COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s", "method")
+#: Columns of the refractor CSV file (plus-minus), then the GRM ones when computed.
+CSV_COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s")
+GRM_COLUMNS = ("grm_depth_m", "grm_elevation_m", "grm_uncertainty_m", "grm_velocity_m_s")
 
 
 @dataclass
@@ -110,19 +113,40 @@ class RefractorProfile:
                    pairs=list(d.get("pairs", [])), warnings=list(d.get("warnings", [])))
 
     def to_csv_text(self):
+        """CSV text, one row per geophone and refractor.
+
+        Columns ``refractor,x,surface_z,depth_m,elevation_m,uncertainty_m,velocity_m_s``
+        from the plus-minus method; with GRM results also ``grm_depth_m,
+        grm_elevation_m, grm_uncertainty_m, grm_velocity_m_s`` (empty where GRM has no
+        value). Distances and depths in m, velocities in m/s.
+        """
+        def fmt(v, digits=3):
+            return "" if v is None or not math.isfinite(v) else f"{v:.{digits}f}"
+
+        has_grm = bool(np.any(self.method == "grm"))
+        header = list(CSV_COLUMNS) + (list(GRM_COLUMNS) if has_grm else [])
+        grm = {}
+        for k in np.flatnonzero(self.method == "grm"):
+            grm[(int(self.refractor[k]), round(float(self.x[k]), 3))] = k
+        keys = [(int(self.refractor[k]), round(float(self.x[k]), 3), k) for k in range(len(self))
+                if self.method[k] == "plus-minus"]
         out = io.StringIO()
         w = csv.writer(out, lineterminator="\n")
-        w.writerow(COLUMNS)
-        for k in range(len(self)):
-            w.writerow([int(self.refractor[k]), f"{self.x[k]:.3f}", f"{self.surface_z[k]:.3f}",
-                        f"{self.depth_m[k]:.3f}", f"{self.elevation_m[k]:.3f}",
-                        "" if not math.isfinite(self.uncertainty_m[k]) else f"{self.uncertainty_m[k]:.3f}",
-                        f"{self.velocity_m_s[k]:.1f}", self.method[k]])
+        w.writerow(header)
+        for j, x, k in sorted(keys):
+            row = [j, f"{self.x[k]:.3f}", f"{self.surface_z[k]:.3f}", fmt(self.depth_m[k]),
+                   fmt(self.elevation_m[k]), fmt(self.uncertainty_m[k]), fmt(self.velocity_m_s[k], 1)]
+            if has_grm:
+                g = grm.get((j, x))
+                row += ["", "", "", ""] if g is None else [
+                    fmt(self.depth_m[g]), fmt(self.elevation_m[g]), fmt(self.uncertainty_m[g]),
+                    fmt(self.velocity_m_s[g], 1)]
+            w.writerow(row)
         return out.getvalue()
 
 
 def write_profile_csv(path, profile):
-    """Write ``refractor,x,surface_z,depth_m,elevation_m,...`` atomically."""
+    """Write the profile as CSV atomically (columns: :meth:`RefractorProfile.to_csv_text`)."""
     with atomic_open(path, "w", encoding="utf-8", newline="") as out:
         out.write(profile.to_csv_text())
 

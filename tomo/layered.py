@@ -643,7 +643,7 @@ def _spacing(picks):
 def interface_depths(result, x):
     """Depth (m, below ground) of the top of each layer 2..n at distances ``x`` (m).
 
-    The delay-time refractor where the profile covers ``x``, the intercept-time depths
+    The delay-time (plus-minus) refractor where the profile covers ``x``, the intercept-time depths
     under the shots (linear between shots, constant beyond) elsewhere, the line-wide
     table where neither exists. Returns an array (n_layers - 1, x.size),
     non-decreasing downward.
@@ -665,8 +665,8 @@ def interface_depths(result, x):
             d = np.full(x.size, default)
         prof = result.profile
         if prof is not None:
-            # GRM where it was computed (it allows for the offset of the emergence points)
-            px, pd = prof.refractor_depths(k - 1, method="grm")
+            # the plus-minus depths, as in the refractor CSV file (GRM only where no plus-minus)
+            px, pd = prof.refractor_depths(k - 1)
             if px.size >= 2:
                 inside = (x >= px.min()) & (x <= px.max())
                 d = np.where(inside, np.interp(x, px, pd), d)

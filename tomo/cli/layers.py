@@ -21,7 +21,9 @@ def register(sub):
     p.add_argument("picks", metavar="PICKS.csv", help="pick file")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x,z)")
     p.add_argument("--out", metavar="layers.json", help="write the interpretation as JSON")
-    p.add_argument("--profile", metavar="refractor.csv", help="write refractor depths per geophone")
+    p.add_argument("--profile", metavar="refractor.csv",
+                   help="write refractor depths per geophone: refractor,x,surface_z,depth_m,elevation_m,"
+                        "uncertainty_m,velocity_m_s (plus-minus; grm_* columns with --grm)")
     p.add_argument("--figure", metavar="curves.png", help="write the picks with the fitted branches")
     p.add_argument("--branches", type=int, metavar="N",
                    help=f"fit N branches on every side (1-{MAX_BRANCHES}; default: chosen by the BIC)")
