@@ -252,10 +252,14 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
     bx.set_ylabel("Difference (m)")
     bx.set_title("Contour minus refractor elevation (positive: contour above; open circles: contour below "
                  "the depth of investigation)", fontsize=8.5)
-    # the aspect-locked section is narrower than the free panels; match their widths
+    # The aspect-locked section is narrower, and often shorter, than its slot: put the
+    # legend and the difference panel right under it, at its width.
     fig.canvas.draw()
     top = ax.get_position()
-    for other in (bx, lx):
-        low = other.get_position()
-        other.set_position([top.x0, low.y0, top.width, low.height])
+    to_fig = fig.transFigure.inverted()
+    section_bottom = ax.get_tightbbox(fig.canvas.get_renderer()).transformed(to_fig).y0
+    legend_h, gap = lx.get_position().height, 0.015
+    lx.set_position([top.x0, section_bottom - gap - legend_h, top.width, legend_h])
+    bx_h = bx.get_position().height
+    bx.set_position([top.x0, section_bottom - gap - legend_h - 0.06 - bx_h, top.width, bx_h])
     return fig
