@@ -135,7 +135,7 @@ class InversionSettings:
     v_min_m_s: float | None = None
     v_max_m_s: float | None = None
     solver: str = "lsmr"
-    solver_iterations: int = 400
+    solver_iterations: int = 200
     solver_tol: float = 1e-4
     line_search_steps: int = 3
     workers: int = 2
@@ -528,7 +528,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         elapsed = _time.perf_counter() - t_begin
         left = None
         if k > 0 and k < settings.max_iterations:
-            per = elapsed / (k + 0.5)
+            per = (elapsed - state["start_s"]) / k  # mean time of the finished iterations
             left = per * (settings.max_iterations - k)
         progress(IterationInfo(k, settings.max_iterations, history["chi2"][-1], history["rms_ms"][-1],
                                lam, step, elapsed, left, dict(timing)))
@@ -537,6 +537,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
     target_lo = max(settings.chi2_target - settings.chi2_tolerance, 0.0)
     try:
         snapshot("running (starting model)")
+        state["start_s"] = _time.perf_counter() - t_begin
         report(0, float("nan"), 0.0, 0.0)
         stop, converged = None, False
         if chi2 <= target_hi:
@@ -544,6 +545,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         lam_prev = None
         stalled = 0
         held = 0
+        alpha_prev = 1.0
         k = 0
         while stop is None:
             if k >= settings.max_iterations:
@@ -567,10 +569,10 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 norm_r = math.sqrt(float(R.multiply(R).sum()) + settings.damping ** 2 * n_par)
                 lam = settings.lambda_start * norm_a / max(norm_r, 1e-30)
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
-                # calibrate the first weight by factors of 2 until the prediction
-                # brackets the aim (at most a few solves)
-                direction = 2.0 if predicted < aim else 0.5
-                for _ in range(6):
+                # calibrate the first weight by factors of 4 until the prediction
+                # brackets the aim (at most three more solves)
+                direction = 4.0 if predicted < aim else 0.25
+                for _ in range(3):
                     lam_c = lam * direction
                     u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, settings, u)
                     if direction > 1:
@@ -597,7 +599,9 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
             # of the parabola through chi2(0), its slope at 0 (from the linearisation) and
             # chi2(alpha) (Nocedal & Wright 2006, sec. 3.5), then halving
             slope0 = -2.0 * float(np.mean(b * (A @ u)))
-            alpha, best = 1.0, None
+            # after short steps, try twice the last one first (saves a pass when the
+            # problem is strongly non-linear for several iterations)
+            alpha, best = min(1.0, 2.0 * alpha_prev), None
             for _ in range(settings.line_search_steps + 1):
                 trial = np.clip(m + alpha * u, lo, hi)
                 res_t, r_t, chi2_t = evaluate(trial)
@@ -622,6 +626,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 stop = STOP_NO_STEP
                 break
             m, res, r, chi2_new, alpha = best
+            alpha_prev = alpha
             improvement = (chi2 - chi2_new) / chi2
             chi2 = chi2_new
             models.append(velocity_grid(m))
