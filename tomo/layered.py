@@ -520,12 +520,27 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                         "vertical_depth_left_m": d["vertical_depth_down_m"],
                         "vertical_depth_right_m": d["vertical_depth_up_m"]})
                 pair_v.append(d["velocity_m_s"])
-                if disagree > pct:
-                    warnings.append(
-                        f"layer {k}: apparent velocities {a_right:.0f} m/s (shot at {fa.shot_x:g} m) and "
-                        f"{a_left:.0f} m/s (shot at {fb.shot_x:g} m) differ by {disagree:.0f} % (> {pct:g} %): "
-                        f"a dipping or laterally varying refractor; the true velocity {d['velocity_m_s']:.0f} m/s "
-                        f"assumes a plane refractor, dip {d['dip_deg']:.1f} deg")
+        # one warning per layer for the pairs whose directions disagree
+        mine = [d for d in dips if d["layer"] == k]
+        bad = [d for d in mine if d["disagreement_pct"] > pct]
+        if len(bad) == 1:
+            d = bad[0]
+            warnings.append(
+                f"layer {k}: apparent velocities {d['apparent_velocity_from_left_m_s']:.0f} m/s (shot at "
+                f"{d['shot_left_x']:g} m) and {d['apparent_velocity_from_right_m_s']:.0f} m/s (shot at "
+                f"{d['shot_right_x']:g} m) differ by {d['disagreement_pct']:.0f} % (> {pct:g} %): a dipping or "
+                f"laterally varying refractor; the true velocity {d['velocity_m_s']:.0f} m/s assumes a plane "
+                f"refractor, dip {d['dip_deg']:.1f} deg")
+        elif bad:
+            worst = max(bad, key=lambda d: d["disagreement_pct"])
+            vs = [d["velocity_m_s"] for d in bad]
+            warnings.append(
+                f"layer {k}: forward and reverse apparent velocities differ by more than {pct:g} % in {len(bad)} of "
+                f"{len(mine)} reversed pairs (up to {worst['disagreement_pct']:.0f} %: "
+                f"{worst['apparent_velocity_from_left_m_s']:.0f} m/s from the shot at {worst['shot_left_x']:g} m "
+                f"against {worst['apparent_velocity_from_right_m_s']:.0f} m/s from the shot at "
+                f"{worst['shot_right_x']:g} m): a dipping or laterally varying refractor; the pairs' true "
+                f"velocities ({min(vs):.0f} to {max(vs):.0f} m/s) each assume a plane refractor between the shots")
         # line velocity: the dipping-layer formula on the weighted mean slowness of each
         # shooting direction (weights 1/variance of the fitted slopes), so long, well-picked
         # branches count most and a plane dip cancels

@@ -163,9 +163,17 @@ def run(args):
         h = "-" if lay["thickness_m"] is None else f"{lay['thickness_m']:.2f}"
         rev = {None: "-", True: "yes", False: "NO"}[lay["reversed"]]
         print(f"{k:5d}  {lay['velocity_m_s']:14.0f}  {h:>13}  {lay['depth_top_m']:16.2f}  {rev:>8}")
-    for d in result.dips:
-        print(f"layer {d['layer']} between shots {d['shot_left_x']:g} and {d['shot_right_x']:g} m: "
-              f"{d['velocity_m_s']:.0f} m/s, dip {d['dip_deg']:+.1f} deg (positive: deepening to larger x)")
+    for k in sorted({d["layer"] for d in result.dips}):
+        pairs = [d for d in result.dips if d["layer"] == k]
+        if len(pairs) == 1:
+            d = pairs[0]
+            print(f"layer {k} between shots {d['shot_left_x']:g} and {d['shot_right_x']:g} m: "
+                  f"{d['velocity_m_s']:.0f} m/s, dip {d['dip_deg']:+.1f} deg (positive: deepening to larger x)")
+        else:
+            v = [d["velocity_m_s"] for d in pairs]
+            dip = [d["dip_deg"] for d in pairs]
+            print(f"layer {k} from {len(pairs)} reversed pairs: {min(v):.0f} to {max(v):.0f} m/s, dip "
+                  f"{min(dip):+.1f} to {max(dip):+.1f} deg (positive: deepening to larger x; each pair in --out)")
     if result.profile is not None and len(result.profile):
         for j in sorted(set(int(r) for r in result.profile.refractor)):
             x, depth = result.profile.refractor_depths(j)
