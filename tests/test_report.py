@@ -76,6 +76,7 @@ def test_report_sections_and_numbers(reports):
     assert "510" in text and "1480" in text      # the layered table
     assert "made-up warning for the report test" in text
     assert "max_iterations" in text              # settings
+    assert "Depth to the 995 m/s surface" in text  # contour of the layered refractor (510 + 1480) / 2
 
 
 def test_report_without_layered_result_says_so(reports):
