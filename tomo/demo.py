@@ -125,7 +125,7 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
 
     run_path = out / "run.h5"
     t0 = step(3, "invert", "travel-time tomography from the layered starting model")
-    _invert(picks, terrain, run_path, progress, workers, out / "invert.txt")
+    _invert(picks, terrain, run_path, workers, out / "invert.txt", show_progress=progress is not None)
     timings["invert"] = time.perf_counter() - t0
     files += [out / "invert.txt", run_path]
 
@@ -174,7 +174,8 @@ def _layer_summary(path):
     return "layers: " + ", ".join(parts) + " (velocity assumed to increase with depth)"
 
 
-def _invert(picks, terrain, run_path, progress, workers, log):
-    """The inversion step through ``tomo invert``; its progress lines stay on screen."""
+def _invert(picks, terrain, run_path, workers, log, show_progress=True):
+    """The inversion step through ``tomo invert``; its progress lines stay on screen
+    when ``show_progress``, else they go to the log with the rest."""
     _cli(["invert", picks, "--terrain", terrain, "--start", "layered", "--out", str(run_path),
-          "--workers", str(workers)], "invert", log, keep_stderr=True)
+          "--workers", str(workers)], "invert", log, keep_stderr=show_progress)
