@@ -270,12 +270,14 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
     depth_at = {}  # (refractor, method) -> {x: depth}
 
     def side_branch(fit, lob, k):
-        for b, layer in zip(fit.branches, lob):
-            if layer == k:
-                sel = fit.branch_of_pick == b.index
-                xs = fit.shot_x + fit.side * fit.offsets_m[sel]
-                return b, np.round(xs, 3), fit.times_s[sel], sig[fit.pick_index[sel]]
-        return None
+        # every branch of the side on this refractor (two or more where a lateral
+        # change split it); the farthest one stands for the side near the other shot
+        mine = [b for b, layer in zip(fit.branches, lob) if layer == k]
+        if not mine:
+            return None
+        sel = np.isin(fit.branch_of_pick, [b.index for b in mine])
+        xs = fit.shot_x + fit.side * fit.offsets_m[sel]
+        return mine[-1], np.round(xs, 3), fit.times_s[sel], sig[fit.pick_index[sel]]
 
     for k in range(2, n_layers + 1):
         j = k - 1  # refractor number

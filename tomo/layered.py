@@ -203,7 +203,10 @@ class LayeredResult:
     layers : list of dict
         Top to bottom: ``velocity_m_s``, ``thickness_m`` (None for the last layer),
         ``depth_top_m``, ``velocity_sigma_m_s``, ``thickness_sigma_m``, ``reversed``
-        (refractor seen from both directions), ``n_sides`` (shot sides that saw it).
+        (refractor seen from both directions), ``n_sides`` (shot sides that saw it),
+        ``lateral_change`` (its top changes along the line: a break fixed in place was
+        merged; the velocity is then from the minus times, the branch one kept as
+        ``branch_velocity_m_s``).
     sides : list of SideFit
         Branch fits per shot side.
     layer_of_branch : list of list of int
@@ -292,6 +295,68 @@ def json_safe(value):
     if isinstance(value, (list, tuple)):
         return [json_safe(v) for v in value]
     return value
+
+
+def _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, spacing, warnings):
+    """Merge two line layers whose branch break is fixed in place rather than in offset.
+
+    Over flat layers the break between two branches comes at the same offset (the
+    crossover distance) whatever the shot position. A break that stays at one place
+    along the line while the shots move is made by the refractor itself changing there
+    (a step, trough or change of dip) or by a lateral velocity change, not by a deeper
+    layer (common practice). When, over the shot sides that show the break, the spread
+    of its positions is under half the spread of its offsets (and the offsets spread
+    over more than two geophone spacings), the deeper of the two layers is merged into
+    the upper one: both branches are then head waves from the same refractor, which the
+    delay-time methods follow with its varying depth.
+
+    Changes ``layer_of_branch`` in place; returns the new layer count, the template and
+    the set of (new) layer indices whose top is such a changing refractor.
+    """
+    lateral = set()
+    k = 2
+    while k < n_layers:
+        offsets, positions = {}, {}
+        for f, lob in zip(fits, layer_of_branch):
+            if not f.ok:
+                continue
+            for i in range(len(lob) - 1):
+                if lob[i] == k and lob[i + 1] == k + 1 and i < len(f.crossovers_m):
+                    c = f.crossovers_m[i]
+                    if math.isfinite(c):
+                        offsets.setdefault(f.side, []).append(c)
+                        positions.setdefault(f.side, []).append(f.shot_x + f.side * c)
+
+        def pooled(groups):
+            num, den = 0.0, 0
+            for vals in groups.values():
+                if len(vals) >= 2:
+                    num += float(np.var(vals, ddof=1)) * (len(vals) - 1)
+                    den += len(vals) - 1
+            return math.sqrt(num / den) if den else float("nan")
+
+        n_sides = sum(len(v) for v in offsets.values())
+        off_spread, pos_spread = pooled(offsets), pooled(positions)
+        if n_sides >= 3 and off_spread > 2 * spacing and pos_spread < 0.5 * off_spread:
+            where = "; ".join(f"x = {np.median(positions[s]):.0f} m for shots {'left' if s > 0 else 'right'} of it"
+                              for s in sorted(positions, reverse=True) if positions[s])
+            warnings.append(
+                f"the break between layer {k} ({template[k - 1]:.0f} m/s) and layer {k + 1} "
+                f"({template[k]:.0f} m/s) stays at one place along the line ({where}; spread {pos_spread:.1f} m) "
+                f"while its offset varies ({off_spread:.1f} m): a change along the refractor (step, trough, "
+                f"dip) or a lateral velocity change, not a deeper layer; the two are taken as one refractor")
+            for lob in layer_of_branch:
+                for i, layer in enumerate(lob):
+                    if layer == k + 1:
+                        lob[i] = k
+                    elif layer > k + 1:
+                        lob[i] = layer - 1
+            template = template[:k] + template[k + 1:]
+            n_layers -= 1
+            lateral = {x if x <= k else x - 1 for x in lateral} | {k}
+        else:
+            k += 1
+    return n_layers, template, lateral
 
 
 def _near_shot(fit):
@@ -451,6 +516,8 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         n_layers += 1
         for f, lob in deeper:
             lob[-1] = n_layers
+    n_layers, template, lateral = _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, _spacing(picks),
+                                                        warnings)
     for f, lob in zip(fits, layer_of_branch):
         if f.ok and 0 in lob:
             names = ", ".join(f"{b.index} ({b.velocity_m_s:.0f} m/s)" for b, l in zip(f.branches, lob) if l == 0)
@@ -546,8 +613,9 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         # branches count most and a plane dip cancels
         dirs = {}
         for fa, la in zip(fits, layer_of_branch):
-            b = branch_of(fa, la, k) if fa.ok else None
-            if b is not None:
+            if not fa.ok:
+                continue
+            for b in (b for b, layer in zip(fa.branches, la) if layer == k):
                 wgt = 1.0 / b.slowness_sigma_s_m**2 if b.slowness_sigma_s_m > 0 and math.isfinite(b.slowness_sigma_s_m) else 1.0
                 dirs.setdefault(fa.side, []).append((b.slowness_s_m, wgt, b.slowness_sigma_s_m))
         mean_s = {}
@@ -579,50 +647,55 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                             f"with depth; thicknesses below are unreliable")
     velocities = [lay["velocity_m_s"] for lay in layers]
 
-    # --- thicknesses under each shot from its intercept times
-    shot_depths = []
-    per_layer = [[] for _ in range(n_layers - 1)]
-    for f, lob in zip(fits, layer_of_branch):
-        if not f.ok:
-            continue
-        seen = sorted(set(x for x in lob if x > 1))
-        if not seen:
-            continue
-        vs = [velocities[0]] + [velocities[k - 1] for k in seen]
-        ts = [branch_of(f, lob, k).intercept_s for k in seen]
-        h = intercept_thicknesses(vs, ts)
-        depths, top, prev = {}, 0.0, 1
-        for k, hk in zip(seen, h):
-            top += hk
-            depths[k] = float(top)
-            if k == prev + 1 and math.isfinite(hk):
-                # weight by the intercept's variance: a short branch has a poor intercept
-                b = branch_of(f, lob, k)
-                sig_h = b.intercept_sigma_s / (2 * _cos_term(velocities[k - 2], velocities[k - 1]))
-                weight = 1.0 / sig_h**2 if math.isfinite(sig_h) and sig_h > 0 else 1.0
-                per_layer[k - 2].append((float(hk), weight))
-            prev = k
-        shot_depths.append({"shot_x": f.shot_x, "side": "right" if f.side > 0 else "left", "depths_m": depths})
-    top = 0.0
-    for k in range(n_layers - 1):
-        vals = per_layer[k]
-        if vals:
-            hs = np.array([v for v, _ in vals])
-            ws = np.array([w for _, w in vals])
-            hk = float(np.sum(ws * hs) / np.sum(ws))
-            sig = float(np.sqrt(np.sum(ws * (hs - hk) ** 2) / np.sum(ws) / len(hs))) if len(hs) > 1 else None
-        else:
-            hk, sig = float("nan"), None
-            warnings.append(f"layer {k + 1}: no shot side gives its thickness (its top and base are not both seen)")
-        if hk <= 0:
-            warnings.append(f"layer {k + 1}: thickness {hk:.2f} m is not positive: the intercept times are inconsistent")
-        layers[k]["thickness_m"] = hk if math.isfinite(hk) else None
-        layers[k]["thickness_sigma_m"] = sig
-        layers[k]["depth_top_m"] = top
-        top += hk if math.isfinite(hk) else 0.0
-    layers[-1]["thickness_m"] = None
-    layers[-1]["thickness_sigma_m"] = None
-    layers[-1]["depth_top_m"] = top
+    def fill_thicknesses(velocities):
+        """Thicknesses under each shot from its intercept times, and the line's."""
+        notes = []
+        shot_depths = []
+        per_layer = [[] for _ in range(n_layers - 1)]
+        for f, lob in zip(fits, layer_of_branch):
+            if not f.ok:
+                continue
+            seen = sorted(set(x for x in lob if x > 1))
+            if not seen:
+                continue
+            vs = [velocities[0]] + [velocities[k - 1] for k in seen]
+            ts = [branch_of(f, lob, k).intercept_s for k in seen]
+            h = intercept_thicknesses(vs, ts)
+            depths, top, prev = {}, 0.0, 1
+            for k, hk in zip(seen, h):
+                top += hk
+                depths[k] = float(top)
+                if k == prev + 1 and math.isfinite(hk):
+                    # weight by the intercept's variance: a short branch has a poor intercept
+                    b = branch_of(f, lob, k)
+                    sig_h = b.intercept_sigma_s / (2 * _cos_term(velocities[k - 2], velocities[k - 1]))
+                    weight = 1.0 / sig_h**2 if math.isfinite(sig_h) and sig_h > 0 else 1.0
+                    per_layer[k - 2].append((float(hk), weight))
+                prev = k
+            shot_depths.append({"shot_x": f.shot_x, "side": "right" if f.side > 0 else "left", "depths_m": depths})
+        top = 0.0
+        for k in range(n_layers - 1):
+            vals = per_layer[k]
+            if vals:
+                hs = np.array([v for v, _ in vals])
+                ws = np.array([w for _, w in vals])
+                hk = float(np.sum(ws * hs) / np.sum(ws))
+                sig = float(np.sqrt(np.sum(ws * (hs - hk) ** 2) / np.sum(ws) / len(hs))) if len(hs) > 1 else None
+            else:
+                hk, sig = float("nan"), None
+                notes.append(f"layer {k + 1}: no shot side gives its thickness (its top and base are not both seen)")
+            if hk <= 0:
+                notes.append(f"layer {k + 1}: thickness {hk:.2f} m is not positive: the intercept times are inconsistent")
+            layers[k]["thickness_m"] = hk if math.isfinite(hk) else None
+            layers[k]["thickness_sigma_m"] = sig
+            layers[k]["depth_top_m"] = top
+            top += hk if math.isfinite(hk) else 0.0
+        layers[-1]["thickness_m"] = None
+        layers[-1]["thickness_sigma_m"] = None
+        layers[-1]["depth_top_m"] = top
+        return shot_depths, notes
+
+    shot_depths, notes = fill_thicknesses(velocities)
 
     # --- the limits of the method, stated plainly
     spacing = _spacing(picks)
@@ -637,6 +710,8 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         warnings.append("one layer only: no refractor within the offsets recorded (the spread sees to about a "
                         "quarter to a third of its longest offset, common practice)")
 
+    for k in range(1, n_layers + 1):
+        layers[k - 1]["lateral_change"] = k in lateral
     result = LayeredResult(layers=layers, sides=fits, layer_of_branch=layer_of_branch,
                            shot_depths=shot_depths, dips=dips, warnings=warnings, messages=messages,
                            options=options)
@@ -644,7 +719,31 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         from .delay import delay_time_profile
 
         result.profile = delay_time_profile(picks, result, terrain=terrain, grm=grm, grm_xy_m=grm_xy_m)
+        # Over a refractor that changes along the line (a merged lateral break) the branch
+        # slopes mix up-dip and down-dip stretches; the minus-time velocity of the delay-time
+        # pairs (Hagedoorn 1959) is then the better estimate: take it and redo the rest.
+        changed = False
+        for k in sorted(lateral):
+            sel = (result.profile.refractor == k - 1) & (result.profile.method == "plus-minus")
+            if np.any(sel):
+                v_minus = float(result.profile.velocity_m_s[sel][0])
+                if math.isfinite(v_minus) and v_minus > velocities[k - 2] and abs(v_minus / velocities[k - 1] - 1) > 1e-3:
+                    warnings.append(f"layer {k}: velocity {v_minus:.0f} m/s from the minus times replaces "
+                                    f"{velocities[k - 1]:.0f} m/s from the branch slopes (the refractor changes "
+                                    f"along the line)")
+                    layers[k - 1]["branch_velocity_m_s"] = velocities[k - 1]
+                    layers[k - 1]["velocity_m_s"] = v_minus
+                    layers[k - 1]["velocity_sigma_m_s"] = None
+                    changed = True
+        if changed:
+            velocities = [lay["velocity_m_s"] for lay in layers]
+            shot_depths, notes = fill_thicknesses(velocities)
+            result.shot_depths = shot_depths
+            result.profile = delay_time_profile(picks, result, terrain=terrain, grm=grm, grm_xy_m=grm_xy_m)
+        result.warnings.extend(notes)
         result.warnings.extend(result.profile.warnings)
+    else:
+        result.warnings.extend(notes)
     return result
 
 
