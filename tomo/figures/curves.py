@@ -104,9 +104,13 @@ def branches_figure(result, path, picks=None, max_columns=3):
                 ax.plot(fit.shot_x + fit.side * uu, b.time(uu) * 1e3, "-", color=colour, lw=1.4)
                 um = 0.5 * (u0 + u1)
                 # below the line, on the side away from the shot, clear of the picks
+                # the first branches of the two sides meet at the shot: push their labels
+                # apart, away from the shot
+                first = b.index == 1
                 ax.annotate(f"{b.velocity_m_s:.0f}", (fit.shot_x + fit.side * um, float(b.time(um)) * 1e3),
-                            xytext=(fit.side * 3, -10), textcoords="offset points",
-                            ha="center", fontsize=7, color=colour)
+                            xytext=(fit.side * (5 if first else 3), -10), textcoords="offset points",
+                            ha=("left" if fit.side > 0 else "right") if first else "center",
+                            fontsize=7, color=colour)
             for c, b in zip(fit.crossovers_m, fit.branches[:-1]):
                 if math.isfinite(c) and c > 0:
                     ax.plot(fit.shot_x + fit.side * c, float(b.time(c)) * 1e3, "D", ms=4, color=style.BLACK,
