@@ -74,7 +74,7 @@ def check_recovery(run, mesh, true_depth, v1, v2, settings):
     cols = np.arange(mesh.nx)
     cov = sum(run.coverage[row + d, cols] for d in (-1, 0, 1))
     good = (mesh.x > 6.0) & (mesh.x < 40.0) & (cov >= 5.0)
-    assert good.sum() >= 25, np.round(cov, 1)
+    assert good.sum() >= 20, np.round(cov, 1)  # most of the 34 columns in between
     err = np.abs(depth[good] - true_depth[good]) / true_depth[good]
     # Issue 4: within 10 % where coverage is good. Measured on these lines: 9 in 10
     # columns within 10 %, the worst 11-12 % where smoothing rounds the bottom of the

@@ -135,7 +135,7 @@ class InversionSettings:
     v_min_m_s: float | None = None
     v_max_m_s: float | None = None
     solver: str = "lsmr"
-    solver_iterations: int = 200
+    solver_iterations: int = 100
     solver_tol: float = 1e-4
     line_search_steps: int = 3
     workers: int = 2
@@ -267,14 +267,32 @@ def _pass_chunk(chunk):
     gz = np.stack([g[1] for g in grads])
     del grads
     rays = trace_many(mesh, gx, gz, np.array([f.source for f in fields_]), np.array([f.radius for f in fields_]),
-                      starts, which, step=opts["ray_step"])
+                      starts, which, step=opts["ray_step"], to_cells=_STATE["to_cells"])
     t2 = _time.perf_counter()
     fallbacks = [f.source for f in fields_ if f.fallback]
     return rows, times, rays.matrix, t1 - t0, t2 - t1, fallbacks, rays.unfinished
 
 
+_GROUND_COLUMNS = {}
+
+
+def _ground_columns(mesh):
+    """``mesh.cell_to_node`` restricted to the ground cells (cached per mesh)."""
+    key = id(mesh)
+    hit = _GROUND_COLUMNS.get(key)
+    if hit is None or hit[0] is not mesh:
+        gidx = np.flatnonzero(mesh.ground.ravel())
+        _GROUND_COLUMNS.clear()
+        hit = (mesh, mesh.cell_to_node[:, gidx].tocsr())
+        _GROUND_COLUMNS[key] = hit
+    return hit[1]
+
+
 def forward_pass(mesh, cell_slowness, picks, settings=None):
     """Computed times and the ray matrix for a cell slowness model (s/m, (nz, nx)).
+
+    The matrix has one row per pick and one column per *ground* cell (in row-major
+    order of ``mesh.ground``): path length in m.
 
     Fields are solved from the shots (or from the geophones when there are fewer of
     them and ``settings.reciprocity``), in ``settings.workers`` forked processes.
@@ -295,8 +313,8 @@ def forward_pass(mesh, cell_slowness, picks, settings=None):
     n_chunks = min(len(origins), max(1, workers * 2)) if workers > 1 else 1
     order = np.argsort([-g.size for g in groups])  # big groups first
     chunks = [sorted(order[k::n_chunks].tolist()) for k in range(n_chunks)]
-    _ = mesh.cell_to_node  # build once before forking
-    _STATE.update(mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
+    to_cells = _ground_columns(mesh)  # built once, before forking
+    _STATE.update(to_cells=to_cells, mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
                   opts={"order": settings.order, "source_radius": settings.source_radius,
                         "ray_step": settings.ray_step})
     try:
@@ -500,7 +518,8 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
     state = {"run": None}
 
     def snapshot(stop_reason="", converged=False):
-        cov = np.asarray(res.matrix.sum(axis=0)).reshape(mesh.shape)
+        cov = np.zeros(mesh.shape)
+        cov[ground] = np.asarray(res.matrix.sum(axis=0)).ravel()
         run = RunData(
             x=mesh.x.copy(), z=mesh.z.copy(), velocity=velocity_grid(m), coverage=np.where(ground, cov, 0.0),
             start_velocity=start.copy(), terrain_x=mesh.terrain.x.copy(), terrain_z=mesh.terrain.z.copy(),
@@ -553,7 +572,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 break
             k += 1
             t_iter = _time.perf_counter()
-            G = res.matrix[:, gidx]
+            G = res.matrix
             if par == "logv":
                 J = G @ sp.diags(-np.exp(-m))  # ds/dlog v = -s
             else:

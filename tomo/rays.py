@@ -125,7 +125,8 @@ def trace_rays(mesh, field, x, z, keep_paths=False, step=DEFAULT_STEP):
                       np.column_stack([x, z]), np.zeros(x.size, int), keep_paths=keep_paths, step=step)
 
 
-def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, step=DEFAULT_STEP):
+def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, step=DEFAULT_STEP,
+               to_cells=None):
     """Trace rays through several travel-time fields at once (vectorised over all rays).
 
     Parameters
@@ -141,6 +142,9 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
         Ray start points (x, z), m.
     which : ndarray of int (n_rays,)
         Field of each ray.
+    to_cells : sparse matrix (n_nodes, n_cols), optional
+        Map from node lengths to matrix columns (default ``mesh.cell_to_node``, all
+        cells; the inversion passes its columns for the ground cells only).
 
     Returns
     -------
@@ -165,7 +169,7 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
     dist0 = np.hypot(pos[:, 0] - src[:, 0], pos[:, 1] - src[:, 1])
     # a ray is rarely more than about twice as long as the straight line (common practice)
     max_steps = int(np.ceil(3.0 * (dist0.max(initial=0.0) + ds) / ds)) + 20
-    seg_ray, seg_mid, seg_len = [], [], []  # steps: ray ids, start and end points
+    seg_ray, seg_from, seg_to = [], [], []  # steps: ray ids, start and end points
     straight_ray, straight_mid, straight_len = [], [], []
     paths = [[p.copy()] for p in pos] if keep_paths else None
     active = np.arange(n)
@@ -217,16 +221,16 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
         new_z = np.clip(new_z, z_lo, ground)
         new = np.column_stack([new_x, new_z])
         seg_ray.append(active)
-        seg_mid.append(p)
-        seg_len.append(new)
+        seg_from.append(p)
+        seg_to.append(new)
         pos[active] = new
         if keep_paths:
             for r, q in zip(active, new):
                 paths[r].append(q)
     # steps: book each in pieces no longer than a node spacing, at the pieces' midpoints
     rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)
-    a = np.concatenate(seg_mid) if seg_mid else np.zeros((0, 2))
-    b = np.concatenate(seg_len) if seg_len else np.zeros((0, 2))
+    a = np.concatenate(seg_from) if seg_from else np.zeros((0, 2))
+    b = np.concatenate(seg_to) if seg_to else np.zeros((0, 2))
     sub = max(int(np.ceil(step - 1e-9)), 1)
     step_len = np.hypot(b[:, 0] - a[:, 0], b[:, 1] - a[:, 1]) / sub
     rows = [np.concatenate(straight_ray)] if straight_ray else []
@@ -240,13 +244,13 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
     rows = np.concatenate(rows) if rows else np.zeros(0, int)
     mids = np.concatenate(mids) if mids else np.zeros((0, 2))
     lens = np.concatenate(lens) if lens else np.zeros(0)
-    matrix = _book(mesh, rows, mids, lens, n)
+    matrix = _book(mesh, rows, mids, lens, n, mesh.cell_to_node if to_cells is None else to_cells)
     length = np.bincount(rows, weights=lens, minlength=n)
     out_paths = [np.array(q) for q in paths] if keep_paths else None
     return Rays(matrix, length, out_paths, unfinished)
 
 
-def _straight(p, s, ray_ids, ds, seg_ray, seg_mid, seg_len):
+def _straight(p, s, ray_ids, ds, out_ray, out_mid, out_len):
     """Book the straight last stretch from points ``p`` to sources ``s`` in pieces <= ds."""
     d = np.hypot(s[:, 0] - p[:, 0], s[:, 1] - p[:, 1])
     pieces = np.maximum(np.ceil(d / ds).astype(int), 1)
@@ -254,12 +258,12 @@ def _straight(p, s, ray_ids, ds, seg_ray, seg_mid, seg_len):
     k = np.arange(reps.size) - np.repeat(np.cumsum(pieces) - pieces, pieces)
     frac = (k + 0.5) / pieces[reps]
     mids = p[reps] + frac[:, None] * (s[reps] - p[reps])
-    seg_ray.append(ray_ids[reps])
-    seg_mid.append(mids)
-    seg_len.append(d[reps] / pieces[reps])
+    out_ray.append(ray_ids[reps])
+    out_mid.append(mids)
+    out_len.append(d[reps] / pieces[reps])
 
 
-def _book(mesh, rows, mids, lens, n_rays):
+def _book(mesh, rows, mids, lens, n_rays, to_cells):
     """Lengths booked to the nearest forward node, then mapped to cells by P^T."""
     h = mesh.h
     ny, nx = mesh.node_shape
@@ -267,4 +271,4 @@ def _book(mesh, rows, mids, lens, n_rays):
     i = np.clip(np.rint((mesh.z_top - mids[:, 1]) / h).astype(int), 0, ny - 1)
     nodes = sp.csr_matrix((lens, (rows, i * nx + j)), shape=(n_rays, ny * nx))
     nodes.sum_duplicates()
-    return (nodes @ mesh.cell_to_node).tocsr()
+    return (nodes @ to_cells).tocsr()
