@@ -137,3 +137,19 @@ def test_layers_nothing_usable(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "no shot side could be fitted" in err and len(err.strip().splitlines()) == 1
     assert not (tmp_path / "l.json").exists()
+
+
+def test_layers_outlier_option(tmp_path, capsys):
+    gx = np.arange(0.0, 96.0, 2.0)
+
+    def spoil(picks):
+        k = np.flatnonzero((picks.source_x == -1.0) & (picks.receiver_x == 60.0))[0]
+        picks.time_s[k] += 6e-3  # a 30-sigma mispick
+        return picks
+
+    path = tmp_path / "picks.csv"
+    write_line(path, [-1.0, 47.0, 95.0], gx, bad=spoil)
+    assert main(["layers", str(path)]) == 0
+    assert "1 outlier pick(s) left out" in capsys.readouterr().out
+    assert main(["layers", str(path), "--outlier-sigma", "0"]) == 0
+    assert "outlier pick(s) left out" not in capsys.readouterr().out

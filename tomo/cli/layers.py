@@ -36,6 +36,8 @@ def register(sub):
                    help="break offsets (m) for one side (repeatable)")
     p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS,
                    help=f"pick sigma when the file has no sigma_ms column, ms (default {DEFAULT_SIGMA_MS:g})")
+    p.add_argument("--outlier-sigma", type=float, default=4.0,
+                   help="leave out picks this many robust sigmas from their branch and refit (default 4; 0 keeps all)")
     p.add_argument("--min-contrast-pct", type=float, default=2.0,
                    help="least velocity increase from one branch to the next, %% (default 2)")
     p.add_argument("--disagree-pct", type=float, default=10.0,
@@ -84,6 +86,8 @@ def options_from_args(args):
         raise InputError(f"--sigma-ms must be positive, got {args.sigma_ms:g}")
     if not args.disagree_pct > 0:
         raise InputError(f"--disagree-pct must be positive, got {args.disagree_pct:g}")
+    if args.outlier_sigma < 0:
+        raise InputError(f"--outlier-sigma must be >= 0, got {args.outlier_sigma:g}")
     if args.min_contrast_pct < 0:
         raise InputError(f"--min-contrast-pct must be >= 0, got {args.min_contrast_pct:g}")
     n_branches = args.branches
@@ -109,6 +113,7 @@ def options_from_args(args):
         raise InputError(f"--grm-xy must be >= 0, got {args.grm_xy:g}")
     return {"n_branches": n_branches, "breaks_m": breaks, "sigma_ms": args.sigma_ms,
             "max_branches": args.max_branches, "min_contrast": args.min_contrast_pct / 100.0,
+            "outlier_sigma": args.outlier_sigma or None,
             "velocity_disagreement_pct": args.disagree_pct, "delay_times": not args.no_delay,
             "grm": args.grm or args.grm_xy is not None, "grm_xy_m": args.grm_xy}
 
