@@ -521,7 +521,7 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
     # a first pick close to the shot: the first branch is the direct wave through the origin
     spacing = float(np.median(np.diff(u))) if m > 1 else 1.0
     origin = bool(through_origin and u[0] <= 1.5 * max(spacing, 1e-9) + 1e-9)
-    s_all, a_all, _, _ = _line_fit(u, t, w, False)
+    s_all = _line_fit(u, t, w, False)[0]
     if not s_all > 0:
         fit.messages.append(
             f"{fit.label}: times decrease with offset ({t[0] * 1e3:.2f} ms at {u[0]:g} m to "

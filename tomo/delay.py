@@ -214,7 +214,7 @@ def grm_times(x_g, interp_a, interp_b, t_ab, xy_m):
 
 def _slope(x, y):
     a = np.column_stack([x - x.mean(), np.ones_like(x)])
-    coef, res, *_ = np.linalg.lstsq(a, y, rcond=None)
+    coef = np.linalg.lstsq(a, y, rcond=None)[0]
     n = x.size
     resid = y - a @ coef
     s2 = float(resid @ resid) / max(n - 2, 1)
@@ -305,7 +305,7 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
                     continue
                 length = fb.shot_x - fa.shot_x
                 t_ab, t_ab_source = _reciprocal_time(fa.shot_x, fb.shot_x, xa, ta, xb, tb, ba, bb, length, spacing)
-                plus, minus, v_pm, dv_pm = plus_minus_times(common, ta[ia], tb[ib], t_ab)
+                plus, _, v_pm, dv_pm = plus_minus_times(common, ta[ia], tb[ib], t_ab)
                 candidates.append((fa, fb, sa, sb, common, ia, ib, t_ab, t_ab_source, plus, v_pm, dv_pm))
         # A pair without a measured reciprocal time (off-end shots) gets the t_AB that makes
         # its plus times agree, in the median, with those of the pairs that have one at
@@ -324,7 +324,7 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
             if len(shared) >= 2:
                 sum_t = sa[2][ia] + sb[2][ib]
                 t_ab = float(np.median([sum_t[i] - np.mean(ref[float(common[i])]) for i in shared]))
-                plus, minus, v_pm, dv_pm = plus_minus_times(common, sa[2][ia], sb[2][ib], t_ab)
+                plus, _, v_pm, dv_pm = plus_minus_times(common, sa[2][ia], sb[2][ib], t_ab)
                 candidates[n] = (fa, fb, sa, sb, common, ia, ib, t_ab, "matched to reciprocal pairs", plus, v_pm, dv_pm)
         # one refractor velocity for all pairs: the minus-time velocities weighted by
         # their variances (Hagedoorn 1959 uses the minus-time slope; pooling the pairs
