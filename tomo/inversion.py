@@ -45,7 +45,7 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import lsmr, lsqr
 
 from . import __version__
-from .errors import InputError, SolverError
+from .errors import InputError, SolverError, TomoError
 from .forward import DEFAULT_SOURCE_RADIUS, _map, sample_field, solve_field
 from .rays import DEFAULT_STEP, time_gradient, trace_many
 from .runfile import RunData, write_run
@@ -767,15 +767,22 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
     mesh, spec = mesh_for_picks(picks, terrain, spec)
     notes = list(picks.notices)
     layered = None
+    if start not in ("layered", "gradient"):
+        raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
+    start_used = start
     if start == "layered":
-        velocity, layered = layered_start(picks, mesh, terrain)
-    elif start == "gradient":
+        try:
+            velocity, layered = layered_start(picks, mesh, terrain)
+        except TomoError as exc:
+            # a line the layered methods cannot read still gets a tomogram, from the
+            # gradient start, with a note saying so
+            notes.append(f"layered starting model not available ({exc}); the gradient start was used")
+            start_used = "gradient"
+    if start_used == "gradient":
         velocity, info = gradient_start(picks, mesh, return_fit=True)
         notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
                      f"fitted to the first arrivals")
-    else:
-        raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
-    extra = {"start": start, "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
+    extra = {"start": start_used, "start_requested": start, "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
              "terrain_file": None if terrain_path is None else str(terrain_path),
              "mesh_file": None if mesh_path is None else str(mesh_path)}
     return invert(picks, mesh, velocity, opts, progress=progress, out_path=out_path, layered=layered,

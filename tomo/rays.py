@@ -172,60 +172,59 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
     seg_ray, seg_from, seg_to = [], [], []  # steps: ray ids, start and end points
     straight_ray, straight_mid, straight_len = [], [], []
     paths = [[p.copy()] for p in pos] if keep_paths else None
-    active = np.arange(n)
+    # compact state of the rays still travelling (gathered again only when some finish)
+    ids = np.arange(n)
+    p = pos.copy()
+    s = src.copy()
+    fin = finish.copy()
+    base = which * field_offset
     unfinished = 0
+    top = mesh.z_top
     for count in range(max_steps + 1):
-        if active.size == 0:
+        if ids.size == 0:
             break
-        p = pos[active]
-        s = src[active]
         d = np.hypot(p[:, 0] - s[:, 0], p[:, 1] - s[:, 1])
-        done = d <= finish[active]
+        done = d <= fin
         if count == max_steps:
             unfinished = int((~done).sum())
             done[:] = True
-        if np.any(done):
-            k = active[done]
-            _straight(p[done], s[done], k, h, straight_ray, straight_mid, straight_len)
+        if done.any():
+            _straight(p[done], s[done], ids[done], h, straight_ray, straight_mid, straight_len)
             if keep_paths:
-                for r, q in zip(k, s[done]):
+                for r, q in zip(ids[done], s[done]):
                     paths[r].append(q.copy())
-            active = active[~done]
-            p = p[~done]
-            if active.size == 0:
+            keep = ~done
+            ids, p, s, fin, base = ids[keep], p[keep], s[keep], fin[keep], base[keep]
+            if ids.size == 0:
                 break
         # gradient at the ray points, bilinear over the four surrounding nodes
         fj = (p[:, 0] - x_lo) / h
-        fi = (mesh.z_top - p[:, 1]) / h
-        j = np.clip(np.floor(fj).astype(int), 0, nx - 2)
-        i = np.clip(np.floor(fi).astype(int), 0, ny - 2)
-        tx = np.clip(fj - j, 0.0, 1.0)
-        tz = np.clip(fi - i, 0.0, 1.0)
-        idx = which[active] * field_offset + i * nx + j
+        fi = (top - p[:, 1]) / h
+        j = np.minimum(np.maximum(fj.astype(int), 0), nx - 2)  # points are inside: floor
+        i = np.minimum(np.maximum(fi.astype(int), 0), ny - 2)
+        tx = np.minimum(np.maximum(fj - j, 0.0), 1.0)
+        tz = np.minimum(np.maximum(fi - i, 0.0), 1.0)
+        idx = base + i * nx + j
         g = ((1 - tz) * ((1 - tx) * flat_g[idx] + tx * flat_g[idx + 1])
              + tz * ((1 - tx) * flat_g[idx + nx] + tx * flat_g[idx + nx + 1]))
-        vx, vz = g.real, g.imag
-        norm = np.hypot(vx, vz)
+        norm = np.abs(g)
         good = norm > 0
-        # no usable gradient (should not happen in the ground): head for the source
-        tx_dir = np.where(good, -vx / np.where(good, norm, 1.0), src[active, 0] - p[:, 0])
-        tz_dir = np.where(good, -vz / np.where(good, norm, 1.0), src[active, 1] - p[:, 1])
-        if not np.all(good):
-            bad = ~good
-            dn = np.hypot(tx_dir[bad], tz_dir[bad])
-            tx_dir[bad] /= dn
-            tz_dir[bad] /= dn
-        new_x = np.clip(p[:, 0] + ds * tx_dir, x_lo, x_hi)
-        new_z = p[:, 1] + ds * tz_dir
-        ground = terrain.elevation(new_x, extrapolate=True)
-        new_z = np.clip(new_z, z_lo, ground)
+        if good.all():
+            step_dir = -g / norm
+        else:
+            # no usable gradient (should not happen in the ground): head for the source
+            toward = (s[:, 0] - p[:, 0]) + 1j * (s[:, 1] - p[:, 1])
+            step_dir = np.where(good, -g / np.where(good, norm, 1.0), toward / np.maximum(np.abs(toward), 1e-12))
+        new_x = np.minimum(np.maximum(p[:, 0] + ds * step_dir.real, x_lo), x_hi)
+        new_z = np.minimum(np.maximum(p[:, 1] + ds * step_dir.imag, z_lo),
+                           terrain.elevation(new_x, extrapolate=True))
         new = np.column_stack([new_x, new_z])
-        seg_ray.append(active)
+        seg_ray.append(ids)
         seg_from.append(p)
         seg_to.append(new)
-        pos[active] = new
+        p = new
         if keep_paths:
-            for r, q in zip(active, new):
+            for r, q in zip(ids, new):
                 paths[r].append(q)
     # steps: book each in pieces no longer than a node spacing, at the pieces' midpoints
     rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)

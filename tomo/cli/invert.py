@@ -81,6 +81,8 @@ def run(args):
         note(message)
     print(f"wrote {args.out}: {result.iterations} iteration(s), chi2 {result.chi2:.3f}, "
           f"RMS {result.rms_ms:.3f} ms; stopped: {result.stop_reason}")
+    note("A tomogram is one of many models that fit the picks; velocities do not identify "
+         "materials; calibrate against boreholes; designs need review by a licensed professional.")
     if not result.converged:
         note("the picks are not fitted to their uncertainty (chi2 above target): "
              "see the residuals before using the section")
