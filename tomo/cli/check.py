@@ -18,14 +18,14 @@ def register(sub):
     p.add_argument("picks", metavar="PICKS.csv", help="pick file")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x,z)")
     p.add_argument("--figure", metavar="qc.png", help="write the travel-time curves with flagged picks")
-    p.add_argument("--reciprocal-tol-ms", type=float, default=RECIPROCAL_TOL_MS,
+    p.add_argument("--reciprocal-tol-ms", type=float, default=RECIPROCAL_TOL_MS, metavar="MS",
                    help=f"reciprocal tolerance, ms (default {RECIPROCAL_TOL_MS:g}; common practice: 1-2 ms)")
-    p.add_argument("--reciprocal-tol-pct", type=float, default=RECIPROCAL_TOL_PCT,
+    p.add_argument("--reciprocal-tol-pct", type=float, default=RECIPROCAL_TOL_PCT, metavar="PCT",
                    help=f"reciprocal tolerance, %% of the time (default {RECIPROCAL_TOL_PCT:g}; the larger "
                         f"of the two tolerances applies)")
-    p.add_argument("--outlier-sigma", type=float, default=OUTLIER_SIGMA,
+    p.add_argument("--outlier-sigma", type=float, default=OUTLIER_SIGMA, metavar="N",
                    help=f"outlier threshold in robust sigmas (default {OUTLIER_SIGMA:g})")
-    p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS,
+    p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS, metavar="MS",
                    help=f"pick sigma when the file has no sigma_ms column, ms (default {DEFAULT_SIGMA_MS:g})")
     p.set_defaults(run=run)
 

@@ -34,13 +34,13 @@ def register(sub):
                    help="branch count for one side: shot x (m), left|right, N (repeatable; write --side-branches=-5:right:3 for a negative x)")
     p.add_argument("--side-breaks", action="append", default=[], metavar="X:SIDE:B1,B2",
                    help="break offsets (m) for one side (repeatable)")
-    p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS,
+    p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS, metavar="MS",
                    help=f"pick sigma when the file has no sigma_ms column, ms (default {DEFAULT_SIGMA_MS:g})")
-    p.add_argument("--outlier-sigma", type=float, default=4.0,
+    p.add_argument("--outlier-sigma", type=float, default=4.0, metavar="N",
                    help="leave out picks this many robust sigmas from their branch and refit (default 4; 0 keeps all)")
-    p.add_argument("--min-contrast-pct", type=float, default=2.0,
+    p.add_argument("--min-contrast-pct", type=float, default=2.0, metavar="PCT",
                    help="least velocity increase from one branch to the next, %% (default 2)")
-    p.add_argument("--disagree-pct", type=float, default=10.0,
+    p.add_argument("--disagree-pct", type=float, default=10.0, metavar="PCT",
                    help="warn when forward and reverse refractor velocities differ by more, %% (default 10)")
     p.add_argument("--grm", action="store_true", help="also compute the generalized reciprocal method profile")
     p.add_argument("--grm-xy", type=float, metavar="M", help="GRM XY distance, m (default: the optimum)")
