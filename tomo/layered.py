@@ -17,6 +17,14 @@ Methods (all assume layers whose velocity increases with depth):
   along the ray: ``sin(theta_1n +- dip) = V1/a``).
 - Delay times under every geophone: :mod:`tomo.delay` (plus-minus, GRM).
 
+Known limits of this implementation: the intercept-time and dipping-layer formulas
+take shots and geophones on one level (the delay-time profile, geophone by geophone,
+copes with terrain); deeper dipping refractors are assumed parallel to the first; an
+undulating refractor bends its branches and the automatic branch count can read the
+bends as extra layers (fix the count with ``n_branches``); a break that stays at one
+place along the line is recognised as a change along the refractor and merged
+(:func:`_merge_lateral_breaks`), a heuristic that does not always fire.
+
 Cautions that go with every result (see :data:`CAUTIONS`): the solution is not unique;
 a layer slower than the one above it, or too thin to give first arrivals of its own,
 does not show on the travel-time curves, and the depths below it come out wrong;
