@@ -38,8 +38,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_side_robust", "pick_sigma", "model_time", "fit_shots", "shot_sides",
-           "MAX_BRANCHES", "DEFAULT_SIGMA_MS"]
+__all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_side_robust", "fit_shots", "shot_sides",
+           "pick_sigma", "model_time", "MAX_BRANCHES", "DEFAULT_SIGMA_MS", "OUTLIER_SIGMA"]
 
 #: Most branches fitted on one side (five layers is more than shallow refraction resolves).
 MAX_BRANCHES = 5

@@ -45,7 +45,7 @@ from .errors import InputError
 __all__ = [
     "intercept_thicknesses", "intercept_times", "crossover_distances", "critical_distances",
     "dipping_refractor", "hidden_layer_thickness", "interpret_line", "starting_model",
-    "LayeredResult", "CAUTIONS",
+    "interface_depths", "LayeredResult", "CAUTIONS", "json_safe",
 ]
 
 CAUTIONS = [
