@@ -195,3 +195,16 @@ def test_trough_in_the_refractor_is_one_refractor():
     assert np.all(np.abs(depth / true - 1) < 0.10)
     # the trough is there: deepest delay-time depths inside it
     assert np.all(depth[(x > 50) & (x < 60)] > 8.0)
+    # and the starting model for the tomography follows it: below the ground of the
+    # mesh, the top of the 2500 m/s layer at the delay-time depth (to one 0.5 m cell)
+    from tomo.layered import starting_model
+
+    grid = build_mesh(-13.0, 107.0, terrain, cell=0.5, depth=16.0)
+    v = starting_model(result, grid)
+    v2 = result.layers[1]["velocity_m_s"]
+    for xq in (20.0, 55.0, 90.0):
+        col = int(np.argmin(np.abs(grid.x - xq)))
+        top = np.interp(xq, x, depth)
+        below = grid.ground[:, col] & (grid.depth[:, col] > top + 0.5)
+        above = grid.ground[:, col] & (grid.depth[:, col] < top - 0.5)
+        assert np.all(v[below, col] == v2) and np.all(v[above, col] < v2)
