@@ -122,6 +122,13 @@ def test_irregular_refractor_from_the_solver():
     # the profile follows the undulation, not just its mean
     x, depth = result.profile.refractor_depths(1)
     assert np.corrcoef(depth, np.interp(x, xb, db))[0, 1] > 0.95
+    # [P80]: at the optimum XY the velocity-analysis function is the simplest. The
+    # self-consistent XY (2 h tan(theta_c), 3.1 m at the mean depth here) must agree with
+    # the smoothest XY of the scan to one scan step plus half a geophone spacing.
+    assert 2 * 6.0 * math.tan(math.asin(500.0 / 2000.0)) == pytest.approx(3.1, abs=0.05)
+    for pair in result.profile.pairs:
+        if pair["n_geophones"] >= 20:
+            assert abs(pair["grm_xy_m"] - pair["grm_xy_smoothest_m"]) <= 0.5 + 1.0
 
 
 def test_uncertainty_matches_scatter():

@@ -26,7 +26,9 @@ neglect.
 Optimum XY. For a given refractor, the rays to X and Y leave the refractor at one point
 when ``XY = 2 sum_i h_i tan(theta_in)`` (Palmer 1980); we find that XY as the fixed point of
 this relation with the GRM depths themselves (starting from the plus-minus depths),
-averaged over the geophones.
+averaged over the geophones. As Palmer's own check, each pair also records the XY
+whose velocity-analysis function is the smoothest over a scan (``grm_xy_smoothest_m``,
+:func:`grm_xy_scan`); over an irregular refractor the two agree (tests).
 
 Reciprocal time. ``t_AB`` comes from the head-wave pick of each shot nearest the other
 shot (within one geophone spacing, moved along the branch slope). For a pair without
@@ -52,7 +54,7 @@ from .errors import InputError
 from .fileio import atomic_open
 
 __all__ = ["RefractorProfile", "delay_time_profile", "depth_from_time_depth", "plus_minus_times",
-           "grm_times", "write_profile_csv"]
+           "grm_times", "grm_xy_scan", "write_profile_csv"]
 
 COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s", "method")
 #: Columns of the refractor CSV file (plus-minus), then the GRM ones when computed.
@@ -212,6 +214,26 @@ def grm_times(x_g, interp_a, interp_b, t_ab, xy_m):
     return x, t_v, t_g, vp, se / slope**2
 
 
+def grm_xy_scan(x_g, interp_a, interp_b, t_ab, xy_values_m):
+    """Roughness (s) of the GRM velocity-analysis function for each XY (m).
+
+    The RMS deviation of ``T_V`` from its least-squares line over the geophones. At the
+    optimum XY the forward and reverse rays leave the refractor at one point and
+    ``T_V`` is the simplest (Palmer 1980); away from it ``T_V`` takes up the refractor's
+    relief. Over a plane refractor every XY gives the noise level only. NaN where fewer
+    than three geophones are covered.
+    """
+    out = []
+    for xy in xy_values_m:
+        x, t_v, _, _, _ = grm_times(x_g, interp_a, interp_b, t_ab, float(xy))
+        if x.size < 3:
+            out.append(float("nan"))
+            continue
+        coef = np.polyfit(x, t_v, 1)
+        out.append(float(np.sqrt(np.mean((t_v - np.polyval(coef, x)) ** 2))))
+    return np.array(out)
+
+
 def _slope(x, y):
     a = np.column_stack([x - x.mean(), np.ones_like(x)])
     coef = np.linalg.lstsq(a, y, rcond=None)[0]
@@ -363,7 +385,14 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
                 g = _grm_pair(common, fa_i, fb_i, t_ab, vs_above, upper_fn=lambda xs: _upper_thicknesses(
                     result, depth_at, j, xs, interface_depths), xy_fixed=grm_xy_m, sig=sig_ab)
                 if g is not None:
-                    pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"]})
+                    # Palmer's check on the optimum: the XY of the simplest velocity analysis
+                    scan = np.arange(0.0, 2.0 * max(g["xy_m"], spacing) + 1e-9, spacing / 4.0)
+                    rough = grm_xy_scan(common, fa_i, fb_i, t_ab, scan)
+                    smooth = float(scan[np.nanargmin(rough)]) if np.any(np.isfinite(rough)) else None
+                    pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"],
+                                 "grm_xy_smoothest_m": smooth,
+                                 "grm_xy_scan_m": [float(v) for v in scan],
+                                 "grm_velocity_analysis_rms_ms": [float(v) * 1e3 for v in rough]})
                     for x, d, u in zip(g["x"], g["depth"], g["unc"]):
                         collected["grm"].setdefault(float(x), []).append((float(d), float(u), g["v_prime"]))
             pairs_info.append(pair)
