@@ -19,6 +19,7 @@ import argparse
 import resource
 import sys
 import time
+from dataclasses import replace
 
 import numpy as np
 
@@ -66,6 +67,7 @@ def main(argv=None):
     parser.add_argument("cases", nargs="*", default=["a", "b"])
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--max-iterations", type=int, default=10)
+    parser.add_argument("--max-reduction", type=float, default=None)
     args = parser.parse_args(argv)
     rows = []
     for case in args.cases:
@@ -80,6 +82,8 @@ def main(argv=None):
         t_start = time.perf_counter() - t_start
         lines = []
         settings = InversionSettings(workers=args.workers, max_iterations=args.max_iterations)
+        if args.max_reduction is not None:
+            settings = replace(settings, max_reduction=args.max_reduction)
         t0 = time.perf_counter()
         last = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "pass_wall_s": 0.0, "passes": 0}
 

@@ -38,7 +38,7 @@ from __future__ import annotations
 import json
 import math
 import time as _time
-from dataclasses import asdict, dataclass, field, fields
+from dataclasses import asdict, dataclass, field, fields, replace
 
 import numpy as np
 import scipy.sparse as sp
@@ -127,7 +127,7 @@ class InversionSettings:
     default_sigma_ms: float = 1.0
     parameter: str = "logv"
     smooth_x: float = 1.0
-    smooth_z: float = 0.3
+    smooth_z: float = 0.2
     damping: float = 0.05
     lambda_start: float = 1.0
     lambda_cooling: float = 0.5
@@ -587,13 +587,14 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 norm_a = math.sqrt(float(A.multiply(A).sum()))
                 norm_r = math.sqrt(float(R.multiply(R).sum()) + settings.damping ** 2 * n_par)
                 lam = settings.lambda_start * norm_a / max(norm_r, 1e-30)
-                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
                 # calibrate the first weight by factors of 4 until the prediction
-                # brackets the aim (at most three more solves)
+                # brackets the aim, with short solves (at most four), then solve fully
+                quick = replace(settings, solver_iterations=min(30, settings.solver_iterations))
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, quick, None)
                 direction = 4.0 if predicted < aim else 0.25
                 for _ in range(3):
                     lam_c = lam * direction
-                    u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, settings, u)
+                    u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, quick, u)
                     if direction > 1:
                         lam, u, predicted = lam_c, u_c, pred_c
                         if pred_c >= aim:
@@ -602,6 +603,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                         if pred_c < aim:
                             break
                         lam, u, predicted = lam_c, u_c, pred_c
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
             else:
                 lam = lam_prev * settings.lambda_cooling
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
