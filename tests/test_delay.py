@@ -96,10 +96,11 @@ def test_irregular_refractor_from_the_solver():
     # 2000 m/s, times from tomo's own fast-marching solver on a 0.125 m node grid plus
     # 0.2 ms noise, five shots on a 96 m spread at 2 m spacing. Issue requirement:
     # plus-minus depths within 10 % of the true depth under every geophone with
-    # reversed coverage. Measured worst errors: plus-minus 5.2 % (3.5 % without the noise),
-    # GRM 2.5 % (1.8 %); plus-minus averages over the two emergence points. The branch count
-    # is given (2) because an undulating refractor bends its branch, which the
-    # noise-aware criterion may read as another layer; the delay times are the point here.
+    # reversed coverage. Measured worst errors with this seed: plus-minus 3.1 %, GRM
+    # 2.6 % (over five seeds at most 5.4 % and 4.0 %). The undulation bends the branches
+    # into what the criterion first reads as two layers; their parallel head waves mark
+    # them as one refractor (tomo.layered._parallelism). The same with the branch count
+    # given (2): plus-minus 2.9 %, GRM 2.5 %.
     xb = np.linspace(-10.0, 110.0, 61)
     db = 6.0 + 1.5 * np.sin(2 * np.pi * xb / 50.0)
     model = Model((Layer(500.0, 0.0, np.column_stack([xb, db])), Layer(2000.0)))
@@ -112,16 +113,18 @@ def test_irregular_refractor_from_the_solver():
     times = synthetic_times(model, layout, mesh).time_s
     times = times + np.random.default_rng(11).normal(0.0, 2e-4, times.size)
     picks = layout.with_times(times, 2e-4)
-    result = interpret_line(picks, terrain=terrain, n_branches=2, grm=True)
-    assert result.velocities_m_s == pytest.approx([500.0, 2000.0], rel=0.03)
-    for method in ("plus-minus", "grm"):
-        x, depth = result.profile.refractor_depths(1, method)
-        true = np.interp(x, xb, db)
-        assert x.size >= 25  # most of the spread has reversed coverage
-        assert np.all(np.abs(depth / true - 1) < 0.10), (method, np.abs(depth / true - 1).max())
-    # the profile follows the undulation, not just its mean
-    x, depth = result.profile.refractor_depths(1)
-    assert np.corrcoef(depth, np.interp(x, xb, db))[0, 1] > 0.95
+    for options in ({}, {"n_branches": 2}):
+        result = interpret_line(picks, terrain=terrain, grm=True, **options)
+        assert len(result.layers) == 2
+        assert result.velocities_m_s == pytest.approx([500.0, 2000.0], rel=0.03)
+        for method in ("plus-minus", "grm"):
+            x, depth = result.profile.refractor_depths(1, method)
+            true = np.interp(x, xb, db)
+            assert x.size >= 20  # most of the spread has reversed coverage
+            assert np.all(np.abs(depth / true - 1) < 0.10), (options, method, np.abs(depth / true - 1).max())
+        # the profile follows the undulation, not just its mean
+        x, depth = result.profile.refractor_depths(1)
+        assert np.corrcoef(depth, np.interp(x, xb, db))[0, 1] > 0.95
     # [P80]: at the optimum XY the velocity-analysis function is the simplest. The
     # self-consistent XY (2 h tan(theta_c), 3.1 m at the mean depth here) must agree with
     # the smoothest XY of the scan to one scan step plus half a geophone spacing.
@@ -178,9 +181,9 @@ def test_trough_in_the_refractor_is_one_refractor():
     # which a deeper layer would not do (its break comes at one offset); the
     # interpretation must take the two branches as one refractor and follow the trough
     # with the delay times: plus-minus depths within 10 % under every reversed
-    # geophone (the issue's tolerance; measured 6.3 %), velocity from the minus times
-    # within 3 % (measured 1.9 %). With this geometry the break test fired in 5 of 6
-    # noise seeds measured; this is one of them.
+    # geophone (the issue's tolerance; measured 2.7 %), velocity from the minus times
+    # within 3 % (measured 1.2 %). With this geometry the merge happened in 5 of 6
+    # noise seeds measured (worst depth error 3.7 %); this is one of them.
     base = np.array([[-20.0, 5.0], [30.0, 5.0], [50.0, 9.0], [60.0, 9.0], [80.0, 5.0], [120.0, 5.0]])
     model = Model((Layer(500.0, 0.0, base), Layer(2500.0)))
     terrain = flat_terrain(-20.0, 120.0, 0.0)

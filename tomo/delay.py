@@ -298,6 +298,15 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
         if not mine:
             return None
         sel = np.isin(fit.branch_of_pick, [b.index for b in mine])
+        # Near the crossover a pick may as well be the arrival from the layer above: keep
+        # only picks clearly (two sigmas) earlier than the branch above would give there
+        # (common practice: crossover picks are ambiguous).
+        above = [b for b, layer in zip(fit.branches, lob) if 0 < layer < k]
+        if above:
+            upper = above[-1].time(fit.offsets_m)
+            sel &= fit.times_s < upper - 2.0 * sig[fit.pick_index]
+        if not np.any(sel):
+            return None
         xs = fit.shot_x + fit.side * fit.offsets_m[sel]
         return mine[-1], np.round(xs, 3), fit.times_s[sel], sig[fit.pick_index[sel]]
 

@@ -305,6 +305,66 @@ def json_safe(value):
     return value
 
 
+#: Largest slope of the difference of two shots' head-wave times, as a fraction of the
+#: slope two distinct layers give, for the branches to count as one refractor.
+PARALLEL_RATIO = 0.4
+
+
+def _parallelism(fits, layer_of_branch, k, template):
+    """How far from parallel the layer k+1 and layer k head waves are at shared geophones.
+
+    Head waves from one refractor recorded from two shots on the same side of a stretch
+    of geophones arrive along the same refractor path and leave it at the same points,
+    so their times differ by a constant whatever the refractor's shape: the curves are
+    parallel (common practice; the principle behind the plus-minus method, Hagedoorn
+    1959). Branches of two distinct layers differ at the rate ``1/V_k - 1/V_{k+1}``. For
+    each pair of shot sides shooting the same way, at the geophones where the nearer shot
+    sees layer k and the farther one layer k+1, the slope of the time difference is
+    fitted; the slopes are pooled (weights 1/variance) and returned as a fraction of the
+    distinct-layer rate. None when no pair has three such geophones or the pooled slope
+    is too uncertain (standard error over a quarter of the distinct-layer rate).
+    """
+    expected = 1.0 / template[k - 1] - 1.0 / template[k]
+    if not expected > 0:
+        return None
+
+    def labelled(f, lob):
+        out = {}
+        for b, layer in zip(f.branches, lob):
+            sel = f.branch_of_pick == b.index
+            for x, t in zip(np.round(f.shot_x + f.side * f.offsets_m[sel], 3), f.times_s[sel]):
+                out[float(x)] = (layer, float(t))
+        return out
+
+    sides = [(f, labelled(f, lob)) for f, lob in zip(fits, layer_of_branch) if f.ok]
+    num = den = 0.0
+    for near, dn in sides:
+        for far, df in sides:
+            # same shooting direction, the far shot behind the near one
+            if far.side != near.side or not near.side * (near.shot_x - far.shot_x) > 0:
+                continue
+            xs = sorted(x for x in dn if x in df and dn[x][0] == k and df[x][0] == k + 1)
+            if len(xs) < 3:
+                continue
+            u = near.side * np.array(xs)  # distance in the shooting direction
+            dt = np.array([df[x][1] - dn[x][1] for x in xs])
+            coef = np.polyfit(u, dt, 1)
+            resid = dt - np.polyval(coef, u)
+            sxx = float(((u - u.mean()) ** 2).sum())
+            if sxx <= 0:
+                continue
+            se = max(math.sqrt(float(resid @ resid) / max(len(u) - 2, 1) / sxx), 1e-9)
+            # the difference falls at 1/V_{k+1} - 1/V_k for distinct layers: sign it positive
+            num += -coef[0] / se**2
+            den += 1.0 / se**2
+    if den == 0.0:
+        return None
+    slope, se = num / den, 1.0 / math.sqrt(den)
+    if se > 0.25 * expected:
+        return None
+    return slope / expected
+
+
 def _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, spacing, warnings):
     """Merge two line layers whose branch break is fixed in place rather than in offset.
 
@@ -316,7 +376,9 @@ def _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, spacing, wa
     of its positions is under half the spread of its offsets (and the offsets spread
     over more than two geophone spacings), the deeper of the two layers is merged into
     the upper one: both branches are then head waves from the same refractor, which the
-    delay-time methods follow with its varying depth.
+    delay-time methods follow with its varying depth. The same merge is made when the
+    two layers' branches run parallel at shared geophones (:func:`_parallelism` under
+    ``PARALLEL_RATIO``), which marks head waves from one refractor.
 
     Changes ``layer_of_branch`` in place; returns the new layer count, the template and
     the set of (new) layer indices whose top is such a changing refractor.
@@ -345,7 +407,9 @@ def _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, spacing, wa
 
         n_sides = sum(len(v) for v in offsets.values())
         off_spread, pos_spread = pooled(offsets), pooled(positions)
-        if n_sides >= 3 and off_spread > 2 * spacing and pos_spread < 0.5 * off_spread:
+        fixed_place = n_sides >= 3 and off_spread > 2 * spacing and pos_spread < 0.5 * off_spread
+        ratio = _parallelism(fits, layer_of_branch, k, template)
+        if fixed_place:
             where = "; ".join(f"x = {np.median(positions[s]):.0f} m for shots {'left' if s > 0 else 'right'} of it"
                               for s in sorted(positions, reverse=True) if positions[s])
             warnings.append(
@@ -353,6 +417,13 @@ def _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, spacing, wa
                 f"({template[k]:.0f} m/s) stays at one place along the line ({where}; spread {pos_spread:.1f} m) "
                 f"while its offset varies ({off_spread:.1f} m): a change along the refractor (step, trough, "
                 f"dip) or a lateral velocity change, not a deeper layer; the two are taken as one refractor")
+        elif ratio is not None and ratio < PARALLEL_RATIO:
+            warnings.append(
+                f"at the same geophones, the layer {k + 1} ({template[k]:.0f} m/s) branches of farther shots run "
+                f"parallel to the layer {k} ({template[k - 1]:.0f} m/s) branches of nearer shots (their difference "
+                f"changes at {ratio:.0%} of the rate two distinct layers would give): head waves from one refractor "
+                f"whose depth or dip changes, not a deeper layer; the two are taken as one refractor")
+        if fixed_place or (ratio is not None and ratio < PARALLEL_RATIO):
             for lob in layer_of_branch:
                 for i, layer in enumerate(lob):
                     if layer == k + 1:
