@@ -21,9 +21,10 @@ Known limits of this implementation: the intercept-time and dipping-layer formul
 take shots and geophones on one level (the delay-time profile, geophone by geophone,
 copes with terrain); deeper dipping refractors are assumed parallel to the first; an
 undulating refractor bends its branches and the automatic branch count can read the
-bends as extra layers (fix the count with ``n_branches``); a break that stays at one
-place along the line is recognised as a change along the refractor and merged
-(:func:`_merge_lateral_breaks`), a heuristic that does not always fire.
+bends as extra layers; two tests recognise most such cases and merge the layers again
+(:func:`_merge_lateral_breaks`: a break fixed in place rather than in offset, or head
+waves running parallel at shared geophones), but they do not always fire (fix the
+count with ``n_branches`` then).
 
 Cautions that go with every result (see :data:`CAUTIONS`): the solution is not unique;
 a layer slower than the one above it, or too thin to give first arrivals of its own,
