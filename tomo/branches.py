@@ -515,7 +515,8 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
     m = u.size
     fit.sigma_s = float(np.median(sig)) if m else float("nan")
     if m < MIN_PICKS_PER_SIDE:
-        fit.messages.append(f"{fit.label}: only {m} pick(s), at least {MIN_PICKS_PER_SIDE} are needed for a branch fit; side skipped")
+        fit.messages.append(f"{fit.label}: only {m} pick(s), at least {MIN_PICKS_PER_SIDE} are needed "
+                            f"for a branch fit; side skipped")
         return fit
     w = 1.0 / sig**2
     # a first pick close to the shot: the first branch is the direct wave through the origin
@@ -541,7 +542,9 @@ def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
         if kept[-1] != m:
             kept[-1] = m
         if len(kept) - 1 < len(edges) + 1:
-            fit.messages.append(f"{fit.label}: breaks at {', '.join(f'{b:g}' for b in edges)} m leave a branch with fewer than {MIN_PICKS_PER_BRANCH} picks; fitted {len(kept) - 1} branch(es)")
+            listed = ", ".join(f"{b:g}" for b in edges)
+            fit.messages.append(f"{fit.label}: breaks at {listed} m leave a branch with fewer than "
+                                f"{MIN_PICKS_PER_BRANCH} picks; fitted {len(kept) - 1} branch(es)")
         if len(kept) < 2:
             kept = [0, m]
         fit.branches, fit.branch_of_pick = _branches_from_bounds(u, t, w, kept, origin)

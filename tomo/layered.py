@@ -554,7 +554,8 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
     if len(bent) == 1:
         warnings.extend(m for m in bent[0].messages if "bend the wrong way" in m)
     elif bent:
-        warnings.append(f"{len(bent)} shot sides ({', '.join(f'{f.shot_x:g} m ' + ('right' if f.side > 0 else 'left') for f in bent)}) "
+        listed = ", ".join(f"{f.shot_x:g} m {'right' if f.side > 0 else 'left'}" for f in bent)
+        warnings.append(f"{len(bent)} shot sides ({listed}) "
                         f"have times that bend the wrong way for flat layers (a later stretch slower than an earlier "
                         f"one): an irregular or dipping refractor, or velocity changing laterally or decreasing with "
                         f"depth; an irregular refractor can also pass for an extra layer (consider fixing the branch count)")
@@ -696,7 +697,8 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
             if not fa.ok:
                 continue
             for b in (b for b, layer in zip(fa.branches, la) if layer == k):
-                wgt = 1.0 / b.slowness_sigma_s_m**2 if b.slowness_sigma_s_m > 0 and math.isfinite(b.slowness_sigma_s_m) else 1.0
+                ds = b.slowness_sigma_s_m
+                wgt = 1.0 / ds**2 if ds > 0 and math.isfinite(ds) else 1.0
                 dirs.setdefault(fa.side, []).append((b.slowness_s_m, wgt, b.slowness_sigma_s_m))
         mean_s = {}
         for side, vals in dirs.items():
