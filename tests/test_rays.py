@@ -100,3 +100,20 @@ def test_sensitivity_matrix_matches_finite_differences(mesh, where):
     # over all picks (relative L2 norm), since a pick whose ray grazes the block edge has
     # a tiny change whose relative error means little.
     assert np.linalg.norm(predicted - fd) <= 0.05 * np.linalg.norm(fd)
+
+
+def test_sensitivity_with_the_inversion_grid():
+    # the inversion's default forward grid (refine 3) and ray step (one model cell);
+    # same check and source as above (Nolet 2008, sec. 2.6): within 5 % of the finite
+    # difference over all picks
+    mesh = build_mesh(0.0, 48.0, flat_terrain(-20.0, 70.0), CELL, 16.0, refine=3, padding=2.0)
+    rz = np.zeros_like(RECEIVERS)
+    s = np.where(mesh.depth > 3.0, 1.0 / 1500.0, 1.0 / 700.0)
+    t1, field = _cells_times(mesh, s, rz)
+    rays = trace_rays(mesh, field, RECEIVERS, rz)
+    ds = np.zeros(mesh.shape)
+    ds[2:6, 8:36] = 0.01 * s[2:6, 8:36]
+    ds = np.where(mesh.ground, ds, 0.0)
+    t2, _ = _cells_times(mesh, s + ds, rz)
+    fd = t2 - t1
+    assert np.linalg.norm(rays.matrix @ ds.ravel() - fd) <= 0.05 * np.linalg.norm(fd)

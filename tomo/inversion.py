@@ -93,7 +93,9 @@ class InversionSettings:
     lambda_start : float
         Starting regularisation weight relative to ||W J||_F / ||R||_F.
     lambda_cooling : float
-        Factor applied to lam each iteration (0 < c <= 1).
+        Factor applied to lam each iteration (0 < c <= 1); applied up to three more
+        times in one iteration while the linearised chi2 stays above 1.5 times the
+        aim (see ``max_reduction``).
     max_reduction : float
         The weight is held (not lowered) when the linearised prediction of chi2 falls
         below max(chi2_target, max_reduction x current chi2): a Gauss-Newton step on
@@ -114,13 +116,13 @@ class InversionSettings:
         Fast-marching order.
     source_radius : float
         Exactly-timed start radius around each source, node spacings.
-    ray_step : float
-        Ray-tracing step, node spacings.
+    ray_step : float or None
+        Ray-tracing step, node spacings (None: one model cell).
     reciprocity : bool
         Solve fields from the geophones when there are fewer geophones than shots.
     """
 
-    max_iterations: int = 10
+    max_iterations: int = 20
     chi2_target: float = 1.0
     chi2_tolerance: float = 0.15
     min_improvement: float = 0.02
@@ -141,7 +143,7 @@ class InversionSettings:
     workers: int = 2
     order: int = 2
     source_radius: float = DEFAULT_SOURCE_RADIUS
-    ray_step: float = DEFAULT_STEP
+    ray_step: float | None = DEFAULT_STEP
     reciprocity: bool = True
 
     def check(self):
@@ -168,7 +170,7 @@ class InversionSettings:
             bad("solver", "expected 'lsmr' or 'lsqr'")
         if self.order not in (1, 2):
             bad("order", "expected 1 or 2")
-        if not self.ray_step > 0:
+        if self.ray_step is not None and not self.ray_step > 0:
             bad("ray_step", "must be positive")
         for name in ("v_min_m_s", "v_max_m_s"):
             v = getattr(self, name)
@@ -605,16 +607,28 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                         lam, u, predicted = lam_c, u_c, pred_c
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
             else:
+                quick = replace(settings, solver_iterations=min(30, settings.solver_iterations))
                 lam = lam_prev * settings.lambda_cooling
-                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, quick, None)
                 if predicted < aim and held < 1 and settings.lambda_cooling < 1:
                     # the linear prediction undershoots the aim: hold lam for one
                     # iteration (holding longer stalls at the regularised minimum)
                     lam = lam_prev
-                    u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
                     held += 1
                 else:
                     held = 0
+                    # while the prediction stays well above the aim, lower lam further
+                    # (at most three more short solves): convergence is then set by
+                    # how far the linearisation is trusted, not by the cooling rate
+                    for _ in range(3 if settings.lambda_cooling < 1 else 0):
+                        if predicted <= 1.5 * aim:
+                            break
+                        lam_c = lam * settings.lambda_cooling
+                        u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, quick, u)
+                        if pred_c < aim:
+                            break
+                        lam, u, predicted = lam_c, u_c, pred_c
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
             timing["solve_s"] += _time.perf_counter() - t_solve
             # line search on the true misfit: full step first; if it fails, the minimum
             # of the parabola through chi2(0), its slope at 0 (from the linearisation) and
