@@ -90,9 +90,17 @@ class QCReport:
         out.append(f"shots at x (picks left/right): {shots}")
         tol = self.settings
         if self.reciprocal_pairs:
-            out.append(f"reciprocal pairs ({len(self.reciprocal_pairs)}; tolerance {tol['reciprocal_tol_ms']:g} ms "
-                       f"or {tol['reciprocal_tol_pct']:g} %, whichever is larger):")
-            for p in self.reciprocal_pairs:
+            # a summary line, then only the pairs a person must look at: the flagged ones,
+            # or the worst three when none is flagged (the full list is in to_dict())
+            diffs = np.abs([p["difference_ms"] for p in self.reciprocal_pairs])
+            flagged = [p for p in self.reciprocal_pairs if p["flagged"]]
+            out.append(f"reciprocal pairs: {len(diffs)}, |difference| median {np.median(diffs):.2f} ms, "
+                       f"max {diffs.max():.2f} ms; {len(flagged)} beyond {tol['reciprocal_tol_ms']:g} ms "
+                       f"or {tol['reciprocal_tol_pct']:g} % (whichever is larger)")
+            shown = flagged or sorted(self.reciprocal_pairs, key=lambda p: -abs(p["difference_ms"]))[:3]
+            if not flagged:
+                out.append("  largest differences:")
+            for p in shown:
                 flag = "  FLAG" if p["flagged"] else ""
                 out.append(f"  shots {p['shot_a_x']:g} <-> {p['shot_b_x']:g} m: {p['time_ab_ms']:.2f} vs "
                            f"{p['time_ba_ms']:.2f} ms, difference {p['difference_ms']:+.2f} ms{flag}")
