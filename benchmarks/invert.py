@@ -66,7 +66,7 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("cases", nargs="*", default=["a", "b"])
     parser.add_argument("--workers", type=int, default=2)
-    parser.add_argument("--max-iterations", type=int, default=10)
+    parser.add_argument("--max-iterations", type=int, default=InversionSettings().max_iterations)
     parser.add_argument("--max-reduction", type=float, default=None)
     args = parser.parse_args(argv)
     rows = []

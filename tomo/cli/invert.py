@@ -30,28 +30,28 @@ def register(sub):
                         "velocity-depth gradient fitted to the picks")
     p.add_argument("--out", default="run.h5", metavar="RUN.h5", help="run file to write (default run.h5)")
     g = p.add_argument_group("inversion settings (defaults suit a typical line)")
-    g.add_argument("--max-iterations", type=int, default=_D.max_iterations, help=f"(default {_D.max_iterations})")
-    g.add_argument("--chi2-target", type=float, default=_D.chi2_target,
+    g.add_argument("--max-iterations", metavar="N", type=int, default=_D.max_iterations, help=f"most iterations (default {_D.max_iterations})")
+    g.add_argument("--chi2-target", metavar="X", type=float, default=_D.chi2_target,
                    help=f"target of mean((residual/sigma)^2) (default {_D.chi2_target:g})")
-    g.add_argument("--sigma-ms", type=float, default=_D.default_sigma_ms,
+    g.add_argument("--sigma-ms", metavar="MS", type=float, default=_D.default_sigma_ms,
                    help=f"pick uncertainty where the pick file has no sigma_ms, ms (default {_D.default_sigma_ms:g})")
     g.add_argument("--parameter", choices=["logv", "slowness"], default=_D.parameter,
                    help=f"model parameter (default {_D.parameter})")
-    g.add_argument("--smooth-x", type=float, default=_D.smooth_x,
+    g.add_argument("--smooth-x", metavar="W", type=float, default=_D.smooth_x,
                    help=f"weight of horizontal smoothing (default {_D.smooth_x:g})")
-    g.add_argument("--smooth-z", type=float, default=_D.smooth_z,
+    g.add_argument("--smooth-z", metavar="W", type=float, default=_D.smooth_z,
                    help=f"weight of vertical smoothing (default {_D.smooth_z:g})")
-    g.add_argument("--damping", type=float, default=_D.damping,
+    g.add_argument("--damping", metavar="W", type=float, default=_D.damping,
                    help=f"weight of damping toward the starting model (default {_D.damping:g})")
-    g.add_argument("--lambda-start", type=float, default=_D.lambda_start,
+    g.add_argument("--lambda-start", metavar="X", type=float, default=_D.lambda_start,
                    help=f"starting regularisation weight, relative (default {_D.lambda_start:g})")
-    g.add_argument("--lambda-cooling", type=float, default=_D.lambda_cooling,
+    g.add_argument("--lambda-cooling", metavar="X", type=float, default=_D.lambda_cooling,
                    help=f"factor lowering the weight per iteration (default {_D.lambda_cooling:g})")
     g.add_argument("--v-min", type=float, default=None, metavar="M_S",
                    help="lowest velocity allowed, m/s (default: min(150, half the starting minimum))")
     g.add_argument("--v-max", type=float, default=None, metavar="M_S",
                    help="highest velocity allowed, m/s (default: max(7000, twice the starting maximum))")
-    g.add_argument("--workers", type=int, default=_D.workers,
+    g.add_argument("--workers", metavar="N", type=int, default=_D.workers,
                    help=f"processes for forward solves and rays (default {_D.workers})")
     p.set_defaults(run=run)
 
