@@ -124,7 +124,7 @@ class InversionSettings:
 
     max_iterations: int = 20
     chi2_target: float = 1.0
-    chi2_tolerance: float = 0.15
+    chi2_tolerance: float = 0.2
     min_improvement: float = 0.02
     default_sigma_ms: float = 1.0
     parameter: str = "logv"
@@ -568,6 +568,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         held = 0
         alpha_prev = 1.0
         k = 0
+        run = None
         while stop is None:
             if k >= settings.max_iterations:
                 stop = STOP_MAX
@@ -610,7 +611,13 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 quick = replace(settings, solver_iterations=min(30, settings.solver_iterations))
                 lam = lam_prev * settings.lambda_cooling
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, quick, None)
-                if predicted < aim and held < 1 and settings.lambda_cooling < 1:
+                if alpha_prev < 0.5:
+                    # the last step had to be cut to less than half: the linearisation
+                    # is poor here, so keep lam (as in Levenberg-Marquardt damping;
+                    # Nocedal & Wright 2006, sec. 10.3) rather than lower it
+                    lam = lam_prev
+                    held = 0
+                elif predicted < aim and held < 1 and settings.lambda_cooling < 1:
                     # the linear prediction undershoots the aim: hold lam for one
                     # iteration (holding longer stalls at the regularised minimum)
                     lam = lam_prev
@@ -677,10 +684,12 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 stalled = 0
             if stop is None and k >= settings.max_iterations:
                 stop = STOP_MAX
-            if stop is None:
-                snapshot(f"running (iteration {k} finished)")
+            # the file first, then the progress line: a Ctrl-C in the callback finds the
+            # iteration it reports already written
+            run = snapshot(stop or f"running (iteration {k} finished)", converged)
             report(k, lam, alpha, _time.perf_counter() - t_iter)
-        run = snapshot(stop, converged)
+        if run is None or run.stop_reason != stop:
+            run = snapshot(stop, converged)
     except KeyboardInterrupt:
         last = state["run"]
         n_done = 0 if last is None else last.iterations
