@@ -15,9 +15,15 @@ differences across cells (horizontal rows weighted by ``smooth_x``, vertical row
 keeps what the data do not constrain at the starting model.
 
 The regularisation weight lam starts from the ratio of the Frobenius norms of W J and R
-(times ``lambda_start``) and is multiplied by ``lambda_cooling`` each iteration while the
-misfit is above target; if the linearised prediction already undershoots the target it
-is held instead. This is the discrepancy principle as used in Occam's inversion
+(times ``lambda_start``, then calibrated by a few short solves so that the linearised
+chi2 does not promise a fall below ``max_reduction`` times the current one) and is
+multiplied by ``lambda_cooling`` each iteration while the misfit is above target (up to
+three more times while the linear prediction stays well above that aim). It is held
+for one iteration when the prediction undershoots the aim, and held (or raised once by
+1 / ``lambda_cooling``) after a step the line search had to cut below a half (a
+quarter) while chi2 is still above twice the target, as in Levenberg-Marquardt
+damping; if no step along the update reduces chi2, the update is solved once more with
+lam lowered by ``lambda_cooling``^2 before the run stops. This is the discrepancy principle as used in Occam's inversion
 (Constable, Parker & Constable 1987, Geophysics 52, 289-300): stop at the smoothest
 model that fits the picks to their uncertainty, chi2 = mean((r / sigma)^2) = 1.
 
@@ -611,11 +617,12 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 quick = replace(settings, solver_iterations=min(30, settings.solver_iterations))
                 lam = lam_prev * settings.lambda_cooling
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, quick, None)
-                if alpha_prev < 0.5:
+                if alpha_prev < 0.5 and not held and chi2 > 2.0 * settings.chi2_target:
                     # the last step had to be cut to less than half: the linearisation
-                    # is poor here, so keep lam (as in Levenberg-Marquardt damping;
-                    # Nocedal & Wright 2006, sec. 10.3) rather than lower it
-                    lam = lam_prev
+                    # is poor here, so keep lam, or raise it after a cut below a
+                    # quarter (Levenberg-Marquardt damping; Nocedal & Wright 2006,
+                    # sec. 10.3), rather than lower it
+                    lam = lam_prev if alpha_prev >= 0.25 else lam_prev / settings.lambda_cooling
                     held = 0
                 elif predicted < aim and held < 1 and settings.lambda_cooling < 1:
                     # the linear prediction undershoots the aim: hold lam for one
@@ -637,32 +644,44 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                         lam, u, predicted = lam_c, u_c, pred_c
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
             timing["solve_s"] += _time.perf_counter() - t_solve
-            # line search on the true misfit: full step first; if it fails, the minimum
-            # of the parabola through chi2(0), its slope at 0 (from the linearisation) and
-            # chi2(alpha) (Nocedal & Wright 2006, sec. 3.5), then halving
-            slope0 = -2.0 * float(np.mean(b * (A @ u)))
+            def line_search(u, alpha):
+                # line search on the true misfit: full step first; if it fails, the minimum
+                # of the parabola through chi2(0), its slope at 0 (from the linearisation) and
+                # chi2(alpha) (Nocedal & Wright 2006, sec. 3.5), then halving
+                slope0 = -2.0 * float(np.mean(b * (A @ u)))
+                best = None
+                for _ in range(settings.line_search_steps + 1):
+                    trial = np.clip(m + alpha * u, lo, hi)
+                    res_t, r_t, chi2_t = evaluate(trial)
+                    account(res_t)
+                    if chi2_t < chi2:
+                        best = (trial, res_t, r_t, chi2_t, alpha)
+                        if chi2_t < target_lo and chi2 > settings.chi2_target:
+                            # overshoot: shorten the step towards the target (chi2 is close
+                            # to linear in alpha over a step this size)
+                            a2 = alpha * (chi2 - settings.chi2_target) / (chi2 - chi2_t)
+                            trial2 = np.clip(m + a2 * u, lo, hi)
+                            res_2, r_2, chi2_2 = evaluate(trial2)
+                            account(res_2)
+                            if chi2_2 < chi2 and abs(chi2_2 - settings.chi2_target) < abs(chi2_t - settings.chi2_target):
+                                best = (trial2, res_2, r_2, chi2_2, a2)
+                        break
+                    curve = (chi2_t - chi2 - slope0 * alpha) / alpha ** 2
+                    a_min = -slope0 / (2.0 * curve) if curve > 0 and slope0 < 0 else 0.5 * alpha
+                    alpha = float(np.clip(a_min, 0.1 * alpha, 0.7 * alpha))
+                return best
+
             # after short steps, try twice the last one first (saves a pass when the
             # problem is strongly non-linear for several iterations)
-            alpha, best = min(1.0, 2.0 * alpha_prev), None
-            for _ in range(settings.line_search_steps + 1):
-                trial = np.clip(m + alpha * u, lo, hi)
-                res_t, r_t, chi2_t = evaluate(trial)
-                account(res_t)
-                if chi2_t < chi2:
-                    best = (trial, res_t, r_t, chi2_t, alpha)
-                    if chi2_t < target_lo and chi2 > settings.chi2_target:
-                        # overshoot: shorten the step towards the target (chi2 is close
-                        # to linear in alpha over a step this size)
-                        a2 = alpha * (chi2 - settings.chi2_target) / (chi2 - chi2_t)
-                        trial2 = np.clip(m + a2 * u, lo, hi)
-                        res_2, r_2, chi2_2 = evaluate(trial2)
-                        account(res_2)
-                        if chi2_2 < chi2 and abs(chi2_2 - settings.chi2_target) < abs(chi2_t - settings.chi2_target):
-                            best = (trial2, res_2, r_2, chi2_2, a2)
-                    break
-                curve = (chi2_t - chi2 - slope0 * alpha) / alpha ** 2
-                a_min = -slope0 / (2.0 * curve) if curve > 0 and slope0 < 0 else 0.5 * alpha
-                alpha = float(np.clip(a_min, 0.1 * alpha, 0.7 * alpha))
+            best = line_search(u, min(1.0, 2.0 * alpha_prev))
+            if best is None and settings.lambda_cooling < 1:
+                # no step reduced chi2 at this weight (near its regularised optimum):
+                # one more try with a lower weight before giving up
+                t_solve = _time.perf_counter()
+                lam = lam * settings.lambda_cooling ** 2
+                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
+                timing["solve_s"] += _time.perf_counter() - t_solve
+                best = line_search(u, 1.0)
             lam_prev = lam
             if best is None:
                 stop = STOP_NO_STEP
