@@ -34,6 +34,10 @@ Optimization, sec. 3.1). A step that would overshoot the target (chi2 below
 target, so the picks are not overfitted. Parameters are clipped to the velocity bounds
 after every update (projection; common practice).
 
+Pick uncertainties come from the pick file's sigma_ms; where it has none, every pick
+gets ``default_sigma_ms`` (1 ms: pick errors of 0.5-2 ms are usual, common practice) and
+the run file's notes say so.
+
 Stops: chi2 at target (within ``chi2_tolerance``), too little improvement (relative
 drop of chi2 below ``min_improvement`` twice running, or no step that reduces it), or
 the maximum number of iterations; ``RunData.stop_reason`` says which.
@@ -57,7 +61,8 @@ from .rays import DEFAULT_STEP, time_gradient, trace_many
 from .runfile import RunData, write_run
 
 __all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert", "run_inversion",
-           "forward_pass", "PassResult", "default_mesh_spec", "MIN_PICKS", "MAX_CELLS_PER_PICK"]
+           "forward_pass", "PassResult", "default_mesh_spec", "smoothness_operator", "MIN_PICKS",
+           "MAX_CELLS_PER_PICK"]
 
 #: Fewer picks than this cannot support a tomogram (use the layered interpretation).
 MIN_PICKS = 20
