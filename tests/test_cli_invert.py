@@ -93,3 +93,23 @@ def test_ctrl_c_keeps_the_last_finished_iteration(pick_file, tmp_path, capsys, m
     assert f"{out} holds the last finished iteration (1 of" in err
     run = read_run(out)
     assert run.iterations == 1 and run.stop_reason == "interrupted"
+
+
+def test_ground_from_station_elevations_without_terrain(pick_file, tmp_path, capsys):
+    from tomo.survey import read_picks
+
+    picks_path, mesh = pick_file
+    picks = read_picks(picks_path)
+    lifted = picks.with_times(picks.time_s, picks.sigma_s)
+    lifted.source_z = picks.source_z + 100.0
+    lifted.receiver_z = picks.receiver_z + 100.0
+    path = tmp_path / "lifted.csv"
+    write_picks(path, lifted)
+    out = tmp_path / "run.h5"
+    status = main(["invert", str(path), "--mesh", str(mesh), "--start", "gradient", "--out", str(out),
+                   "--workers", "1", "--max-iterations", "1"])
+    err = capsys.readouterr().err
+    assert status == 0, err
+    assert "ground is drawn through the station elevations" in err
+    run = read_run(out)
+    assert run.terrain_z.min() == 100.0 and run.z.max() > 100.0

@@ -812,9 +812,13 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         raise InputError(f"bad setting: {exc}") from None
     terrain = read_terrain(terrain_path) if terrain_path else None
     picks = read_picks(picks_path, terrain=terrain)
+    notes = list(picks.notices)
+    if terrain is None:
+        terrain = _terrain_from_stations(picks)
+        if terrain is not None:
+            notes.append("no terrain file: the ground is drawn through the station elevations")
     spec = default_mesh_spec(picks, read_mesh_spec(mesh_path) if mesh_path else None)
     mesh, spec = mesh_for_picks(picks, terrain, spec)
-    notes = list(picks.notices)
     layered = None
     if start not in ("layered", "gradient"):
         raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
@@ -836,6 +840,26 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
              "mesh_file": None if mesh_path is None else str(mesh_path)}
     return invert(picks, mesh, velocity, opts, progress=progress, out_path=out_path, layered=layered,
                   notes=notes, extra_settings=extra)
+
+
+def _terrain_from_stations(picks):
+    """Ground through the highest station at each distance (None when all are at z = 0).
+
+    Padded flat beyond the outermost stations so that the mesh padding has ground.
+    """
+    from .survey import Terrain
+
+    x = np.concatenate([picks.source_x, picks.receiver_x])
+    z = np.concatenate([picks.source_z, picks.receiver_z])
+    if np.all(np.abs(z) < 1e-9):
+        return None
+    key = np.round(x, 4)
+    ux = np.unique(key)
+    uz = np.array([z[key == v].max() for v in ux])
+    span = max(float(ux[-1] - ux[0]), 1.0)
+    ux = np.concatenate([[ux[0] - span], ux, [ux[-1] + span]])
+    uz = np.concatenate([[uz[0]], uz, [uz[-1]]])
+    return Terrain(ux, uz)
 
 
 def default_mesh_spec(picks, spec=None):
