@@ -68,36 +68,28 @@ class Rays:
 def time_gradient(mesh, time):
     """Gradient of a travel-time field on the forward nodes, s/m: (dT/dx, dT/dz).
 
-    ``z`` is elevation (up positive). Central differences where both neighbours are
-    solved, one-sided next to the air mask; nodes above the solved region take the value
-    of the highest solved node of their column, so a ray can be interpolated right up
-    to the ground surface.
+    ``z`` is elevation (up positive). Each column is first continued above its highest
+    solved node by linear extrapolation of the two highest solved values, so that
+    central differences there equal the one-sided difference and a ray can be
+    interpolated right up to the ground surface; then second-order central differences
+    (``numpy.gradient``; one-sided at the grid edges).
     """
     h = mesh.h
     t = np.asarray(time, float)
-    gx = _axis_gradient(t, h, axis=1)
-    # rows go down: dT/dz (elevation) = -(dT/drow)/h
-    gz = -_axis_gradient(t, h, axis=0)
     solved = np.isfinite(t)
+    ny, nx = t.shape
     first = np.argmax(solved, axis=0)
-    rows = np.arange(t.shape[0])[:, None]
-    take = np.maximum(rows, first[None, :])
-    gx = np.take_along_axis(gx, take, axis=0)
-    gz = np.take_along_axis(gz, take, axis=0)
-    return np.nan_to_num(gx), np.nan_to_num(gz)
-
-
-def _axis_gradient(t, h, axis):
-    d = np.diff(t, axis=axis) / h
-    pad_shape = list(t.shape)
-    pad_shape[axis] = 1
-    pad = np.full(pad_shape, np.nan)
-    before = np.concatenate([pad, d], axis=axis)  # difference to the previous node
-    after = np.concatenate([d, pad], axis=axis)   # difference to the next node
-    both = np.isfinite(before) & np.isfinite(after)
-    g = np.where(both, 0.5 * (np.nan_to_num(before) + np.nan_to_num(after)),
-                 np.where(np.isfinite(before), before, after))
-    return g
+    cols = np.arange(nx)
+    t_top = t[first, cols]
+    t_next = t[np.minimum(first + 1, ny - 1), cols]
+    rows = np.arange(ny)[:, None]
+    filled = np.where(rows < first[None, :],
+                      t_top[None, :] + (t_top - t_next)[None, :] * (first[None, :] - rows), t)
+    if not np.all(np.isfinite(filled)):
+        # unsolved nodes inside the grid (not expected): the latest solved time
+        filled = np.where(np.isfinite(filled), filled, np.nanmax(t))
+    d_row, d_col = np.gradient(filled, h)
+    return d_col, -d_row  # rows go down: dT/dz (elevation) = -dT/drow
 
 
 def trace_rays(mesh, field, x, z, keep_paths=False, step=DEFAULT_STEP):
