@@ -57,7 +57,7 @@ from scipy.sparse.linalg import lsmr, lsqr
 from . import __version__
 from .errors import InputError, SolverError, TomoError
 from .forward import DEFAULT_SOURCE_RADIUS, _map, sample_field, solve_field
-from .rays import DEFAULT_STEP, time_gradient, trace_many
+from .rays import DEFAULT_BOOKING, DEFAULT_STEP, time_gradient, trace_many
 from .runfile import RunData, write_run
 
 __all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert", "run_inversion",
@@ -129,6 +129,8 @@ class InversionSettings:
         Exactly-timed start radius around each source, node spacings.
     ray_step : float or None
         Ray-tracing step, node spacings (None: one model cell).
+    ray_booking : {"nearest", "bilinear"}
+        How ray lengths are shared among forward nodes (``tomo.rays.DEFAULT_BOOKING``).
     reciprocity : bool
         Solve fields from the geophones when there are fewer geophones than shots.
     """
@@ -155,6 +157,7 @@ class InversionSettings:
     order: int = 2
     source_radius: float = DEFAULT_SOURCE_RADIUS
     ray_step: float | None = DEFAULT_STEP
+    ray_booking: str = DEFAULT_BOOKING
     reciprocity: bool = True
 
     def check(self):
@@ -181,6 +184,8 @@ class InversionSettings:
             bad("solver", "expected 'lsmr' or 'lsqr'")
         if self.order not in (1, 2):
             bad("order", "expected 1 or 2")
+        if self.ray_booking not in ("nearest", "bilinear"):
+            bad("ray_booking", "expected 'nearest' or 'bilinear'")
         if self.ray_step is not None and not self.ray_step > 0:
             bad("ray_step", "must be positive")
         for name in ("v_min_m_s", "v_max_m_s"):
@@ -280,7 +285,8 @@ def _pass_chunk(chunk):
     gz = np.stack([g[1] for g in grads])
     del grads
     rays = trace_many(mesh, gx, gz, np.array([f.source for f in fields_]), np.array([f.radius for f in fields_]),
-                      starts, which, step=opts["ray_step"], to_cells=_STATE["to_cells"])
+                      starts, which, step=opts["ray_step"], to_cells=_STATE["to_cells"],
+                      booking=opts["ray_booking"])
     t2 = _time.perf_counter()
     fallbacks = [f.source for f in fields_ if f.fallback]
     return rows, times, rays.matrix, t1 - t0, t2 - t1, fallbacks, rays.unfinished
@@ -329,7 +335,7 @@ def forward_pass(mesh, cell_slowness, picks, settings=None):
     to_cells = _ground_columns(mesh)  # built once, before forking
     _STATE.update(to_cells=to_cells, mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
                   opts={"order": settings.order, "source_radius": settings.source_radius,
-                        "ray_step": settings.ray_step})
+                        "ray_step": settings.ray_step, "ray_booking": settings.ray_booking})
     try:
         parts = list(_map(_pass_chunk, chunks, workers))
     finally:
