@@ -9,6 +9,7 @@ Constable 1987, Geophysics 52, "Occam's inversion").
 from __future__ import annotations
 
 import numpy as np
+from matplotlib.ticker import FuncFormatter
 
 from . import style
 
@@ -114,7 +115,7 @@ def misfit_history(run, title="Misfit history"):
     sigma = np.asarray(run.picks["sigma_ms"], float)
     if np.any(np.isfinite(sigma)):
         axes[1].axhline(float(np.sqrt(np.nanmean(sigma**2))), color=style.PALETTE[3], ls="--", lw=1.0,
-                        label="pick sigma (RMS)")
+                        label="pick σ (RMS)")
         axes[1].legend(loc="upper right")
     axes[1].set_ylabel("RMS residual (ms)")
     axes[1].set_ylim(bottom=0.0)
@@ -122,9 +123,15 @@ def misfit_history(run, title="Misfit history"):
     if np.any(np.isfinite(lam) & (lam > 0)):
         axes[2].semilogy(np.arange(lam.size), lam, "^-", color=style.PALETTE[1], ms=4)
     axes[2].set_ylabel("Regularisation weight (no unit)")
+    plain = FuncFormatter(lambda value, _: f"{value:g}")
     for a in axes:
         a.set_xlabel("Iteration")
         a.xaxis.get_major_locator().set_params(integer=True)
+        if a.get_yscale() == "log":
+            # 2, 3, 5 instead of 2 x 10^0: easier to read
+            a.yaxis.set_major_formatter(plain)
+            a.yaxis.set_minor_formatter(FuncFormatter(
+                lambda value, _: f"{value:g}" if f"{value:g}"[0] in "25" else ""))
     fig.suptitle(f"{title}: {run.iterations} iterations, stopped because {run.stop_reason or 'not recorded'}",
                  y=0.98)
     fig.tight_layout(rect=(0, 0, 1, 0.93))
