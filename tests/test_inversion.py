@@ -77,12 +77,16 @@ def check_recovery(run, mesh, true_depth, v1, v2, settings):
     assert good.sum() >= 20, np.round(cov, 1)  # most of the 34 columns in between
     err = np.abs(depth[good] - true_depth[good]) / true_depth[good]
     # Issue 4 asks for within 10 % where coverage is good. Measured with noise seeds 1-6
-    # on both lines: median error 6-10 %, worst column 8-15 % (at the line ends and the
-    # bottom of the trough, where smoothing rounds the surface); in about half the runs
-    # every column is within about 10 %. Asserted so that it holds for any of those
-    # seeds: median within 10 %, no column beyond 16 %.
+    # on both lines (default settings: stop at chi2 <= 1.1, smooth_x 0.5): median error
+    # 3-10 %, worst column 8.6-12.8 % (on the flat shoulders toward the line ends and at
+    # the bottom of the trough, where smoothing rounds the surface; the weathered
+    # zone's contour sits 5-10 % shallow all along, since its overburden velocity
+    # grows to 450-530 m/s at the interface while the contour uses the top 350 m/s).
+    # With a 1 m cell over 8 m of cover, 10 % is less than a cell. Asserted so that it
+    # holds for any of those seeds: median within 10 %, no column beyond 14 % (the
+    # measured worst plus about 1 %).
     assert np.median(err) <= 0.10, np.round(err, 3)
-    assert err.max() <= 0.16, np.round(err, 3)
+    assert err.max() <= 0.14, np.round(err, 3)
 
 
 def test_recovers_a_refractor_with_a_trough():
