@@ -128,8 +128,7 @@ def _input_summary(run):
         ("Geophones", f"{geos.size} (x = {geos.min():g} to {geos.max():g} m, median spacing {spacing:g} m)"),
         ("Offsets", f"{offset.min():.1f} to {offset.max():.1f} m"),
         ("First-arrival times", f"{np.min(p['observed_ms']):.2f} to {np.max(p['observed_ms']):.2f} ms"),
-        ("Pick uncertainty (sigma)", f"{np.nanmin(sigma):.2g} to {np.nanmax(sigma):.2g} ms"
-         if np.any(np.isfinite(sigma)) else "not given"),
+        ("Pick uncertainty (sigma)", _value_range(sigma, "ms") if np.any(np.isfinite(sigma)) else "not given"),
         ("Ground elevation", f"{np.min(run.terrain_z):.1f} to {np.max(run.terrain_z):.1f} m "
                              f"({len(run.terrain_x)} terrain points)"),
         ("Model grid", _mesh_text(run)),
@@ -356,3 +355,11 @@ def write_report(path, run, source=None, skip_note=None, figure_pngs=None):
     with atomic_open(path, "w", encoding="utf-8") as f:
         f.write(text)
     return Path(path)
+
+
+def _value_range(values, unit):
+    """``"0.5 ms"`` for one value, ``"0.3 to 1 ms"`` for a range."""
+    lo, hi = np.nanmin(values), np.nanmax(values)
+    if np.isclose(lo, hi):
+        return f"{lo:.2g} {unit}"
+    return f"{lo:.2g} to {hi:.2g} {unit}"
