@@ -56,6 +56,12 @@ from .fileio import atomic_open
 __all__ = ["RefractorProfile", "delay_time_profile", "depth_from_time_depth", "plus_minus_times",
            "grm_times", "grm_xy_scan", "write_profile_csv"]
 
+#: Reversed geophones (distinct) a minus-time velocity needs to overrule the line velocity
+#: (common practice: a slope from a handful of points cannot be checked).
+MINUS_TIME_MIN_GEOPHONES = 10
+#: Largest relative standard error of such a minus-time velocity (common practice).
+MINUS_TIME_MAX_REL_SIGMA = 0.05
+
 COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s", "method")
 #: Columns of the refractor CSV file (plus-minus), then the GRM ones when computed.
 CSV_COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s")
@@ -368,7 +374,17 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
             dv_pool = float(1.0 / math.sqrt(wv.sum()))
         else:
             v_pool, dv_pool = float("nan"), float("nan")
-        if not (math.isfinite(v_pool) and v_pool > velocities[k - 2] and 0.67 < v_pool / vk_line < 1.5):
+        # The minus-time velocity does not depend on the refractor's shape (Hagedoorn
+        # 1959), the branch-slope line velocity does; so a minus-time velocity resting on
+        # many reversed geophones and well determined stands even far from the line
+        # velocity. One from a few geophones (a short overlap, where steep relief breaks
+        # the delay-time assumptions) must stay within the plausible range of it.
+        n_reversed = len({float(x) for c in candidates for x in c[4]})
+        well_determined = (n_reversed >= MINUS_TIME_MIN_GEOPHONES and math.isfinite(dv_pool)
+                           and dv_pool < MINUS_TIME_MAX_REL_SIGMA * v_pool)
+        plausible = math.isfinite(v_pool) and v_pool > velocities[k - 2] and (
+            well_determined or 0.67 < v_pool / vk_line < 1.5)
+        if not plausible:
             if candidates:
                 warnings.append(f"refractor {j}: minus-time velocity {v_pool:.0f} m/s is implausible or missing; "
                                 f"the line velocity {vk_line:.0f} m/s is used")

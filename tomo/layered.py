@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, OUTLIER_SIGMA, SideFit, fit_shots
+from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, OUTLIER_SIGMA, SideFit, fit_shots, pick_sigma
 from .errors import InputError
 
 __all__ = [
@@ -439,6 +439,119 @@ def _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, spacing, wa
     return n_layers, template, lateral
 
 
+def _assign_sandwiched(fits, layer_of_branch, warnings):
+    """Give an unmatched branch between branches of consecutive line layers to the deeper one.
+
+    A side whose branches match line layers ``k`` and ``k + 1`` with an unmatched branch
+    in between records, after the crossover from layer ``k``, arrivals refracted below
+    layer ``k``; the line has no layer there, so they are head waves from the top of
+    layer ``k + 1`` whose apparent velocity is bent by relief of that refractor (a trough
+    slows them down-dip, a rise speeds them up: delay times change along the line,
+    Hagedoorn 1959). Leaving them out would cut the side's head-wave coverage short
+    just where a reversed pair needs it. Only branches faster than the layer-``k``
+    branch before them are taken (a slower one is no refraction from below).
+    Changes ``layer_of_branch`` in place.
+    """
+    for f, lob in zip(fits, layer_of_branch):
+        if not f.ok:
+            continue
+        for i in range(1, len(lob) - 1):
+            if lob[i] != 0:
+                continue
+            before = next((j for j in range(i - 1, -1, -1) if lob[j]), None)
+            after = next((j for j in range(i + 1, len(lob)) if lob[j]), None)
+            if before is None or after is None or lob[after] != lob[before] + 1:
+                continue
+            if f.branches[i].velocity_m_s > f.branches[before].velocity_m_s:
+                lob[i] = lob[after]
+                warnings.append(f"{f.label}: branch {f.branches[i].index} ({f.branches[i].velocity_m_s:.0f} m/s), "
+                                f"between branches of layers {lob[before]} and {lob[after]}, is taken as head waves "
+                                f"from the top of layer {lob[after]} bent by the refractor's relief")
+
+
+#: Fewest geophones in the stretch shared by same-direction head waves for a common slope.
+COMMON_MIN_GEOPHONES = 4
+#: Probability level of the chi-squared test that same-direction apparent slownesses agree.
+PARALLEL_LEVEL = 0.99
+
+
+def _common_stretch(fits, layer_of_branch, k, sigma_s):
+    """Apparent slowness of layer k in each shooting direction from the shared stretch.
+
+    Over a plane refractor every shot on the same side of a stretch of geophones gives
+    head waves of the same apparent slowness (parallel curves; Telford, Geldart & Sheriff
+    1990, sec. 4.3.3; the principle of the plus-minus method, Hagedoorn 1959). When the
+    branch slownesses of the sides shooting one way disagree beyond their errors (chi-
+    squared at ``PARALLEL_LEVEL``), the refractor is not plane under them: each branch
+    slope then carries, besides ``1/V``, the change of the refractor's delay time along
+    the part of the line that branch alone covers (a trough near the middle of a short
+    line makes the end shots' long branches fast in both directions). The part every one
+    of them covers is common to all, so there the curves keep the slope of one stretch
+    of refractor: we fit one slowness and an intercept per side to the picks at the
+    geophones shared by the sides (the longest branches first, as long as at least
+    ``COMMON_MIN_GEOPHONES`` are shared; weights 1/sigma^2).
+
+    Returns ``{direction: (slowness_s_m, sigma_s_m, {fit index: (intercept_s, sigma_s)},
+    (x_first, x_last), n_sides)}`` for the directions where the test fails and a shared
+    stretch exists; other directions are left to the branch slopes.
+    """
+    from scipy.stats import chi2 as chi2_dist
+
+    out = {}
+    for direction in (1, -1):
+        members, slows = [], []
+        for i, (f, lob) in enumerate(zip(fits, layer_of_branch)):
+            if not f.ok or f.side != direction:
+                continue
+            mine = [b for b, layer in zip(f.branches, lob) if layer == k]
+            if not mine:
+                continue
+            sel = np.isin(f.branch_of_pick, [b.index for b in mine])
+            if sel.sum() < 3:
+                continue
+            xs = np.round(f.shot_x + f.side * f.offsets_m[sel], 3)
+            members.append((i, xs, f.offsets_m[sel], f.times_s[sel], sigma_s[f.pick_index[sel]]))
+            for b in mine:
+                if math.isfinite(b.slowness_sigma_s_m) and b.slowness_sigma_s_m > 0:
+                    slows.append((b.slowness_s_m, b.slowness_sigma_s_m))
+        if len(members) < 2 or len(slows) < 2:
+            continue
+        s_ = np.array([x for x, _ in slows])
+        w_ = 1.0 / np.array([e for _, e in slows]) ** 2
+        mean = float(np.sum(w_ * s_) / w_.sum())
+        if float(np.sum(w_ * (s_ - mean) ** 2)) <= chi2_dist.ppf(PARALLEL_LEVEL, len(slows) - 1):
+            continue
+        members.sort(key=lambda m: -m[1].size)
+        common, used = set(members[0][1].tolist()), [members[0]]
+        for m in members[1:]:
+            shared = common & set(m[1].tolist())
+            if len(shared) >= COMMON_MIN_GEOPHONES:
+                common, used = shared, used + [m]
+        if len(used) < 2:
+            continue
+        rows, rhs, wts = [], [], []
+        for j, (_, xs, off, t, sg) in enumerate(used):
+            keep = np.isin(xs, list(common))
+            for o, tt, ss in zip(off[keep], t[keep], sg[keep]):
+                row = np.zeros(len(used) + 1)
+                row[j], row[-1] = 1.0, o
+                rows.append(row / ss)
+                rhs.append(tt / ss)
+        a, b_ = np.array(rows), np.array(rhs)
+        sol, *_ = np.linalg.lstsq(a, b_, rcond=None)
+        resid = b_ - a @ sol
+        dof = max(len(b_) - sol.size, 1)
+        # scale the covariance by the reduced chi-squared when the picks scatter more
+        # than their sigmas say (common practice)
+        cov = np.linalg.inv(a.T @ a) * max(float(resid @ resid) / dof, 1.0)
+        err = np.sqrt(np.diag(cov))
+        xc = sorted(common)
+        out[direction] = (float(sol[-1]), float(err[-1]),
+                          {m[0]: (float(sol[j]), float(err[j])) for j, m in enumerate(used)},
+                          (xc[0], xc[-1]), len(used))
+    return out
+
+
 def _near_shot(fit):
     """A side whose first pick is within 1.5 spacings of the shot starts with the direct wave."""
     u = fit.offsets_m
@@ -599,6 +712,7 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
             lob[-1] = n_layers
     n_layers, template, lateral = _merge_lateral_breaks(fits, layer_of_branch, n_layers, template, _spacing(picks),
                                                         warnings)
+    _assign_sandwiched(fits, layer_of_branch, warnings)
     for f, lob in zip(fits, layer_of_branch):
         if f.ok and 0 in lob:
             names = ", ".join(f"{b.index} ({b.velocity_m_s:.0f} m/s)" for b, l in zip(f.branches, lob) if l == 0)
@@ -624,6 +738,8 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
 
     # --- refractor velocities from reversed pairs (dipping-layer formula)
     dips = []
+    sigma_s = pick_sigma(picks, sigma_ms)
+    intercept_override = {}  # (fit index, layer) -> (intercept_s, sigma_s) from a shared stretch
     pct = float(velocity_disagreement_pct)
     for k in range(2, n_layers + 1):
         pair_v, seen = [], []
@@ -704,6 +820,21 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         for side, vals in dirs.items():
             ws = np.array([w for _, w, _ in vals])
             mean_s[side] = (float(np.sum(ws * np.array([x for x, _, _ in vals])) / ws.sum()), float(1 / math.sqrt(ws.sum())))
+        # where the same-direction branches are not parallel, the slope of the stretch
+        # they share (and the intercepts there) stand in for the branch slopes
+        for side, (s_c, e_c, icpt, (x_a, x_b), n_c) in _common_stretch(fits, layer_of_branch, k, sigma_s).items():
+            if side in mean_s and 1 / s_c > v1:
+                warnings.append(
+                    f"layer {k}: the apparent velocities of the shots {'left' if side > 0 else 'right'} of its "
+                    f"branches differ beyond their errors (the refractor is not plane under them); "
+                    f"{1 / s_c:.0f} m/s from the stretch x = {x_a:g} to {x_b:g} m that {n_c} of them share "
+                    f"replaces the mean branch value {1 / mean_s[side][0]:.0f} m/s")
+                mean_s[side] = (s_c, e_c)
+                for i, val in icpt.items():
+                    intercept_override[(i, k)] = val
+                # the refractor changes along the line: where reversed pairs record it at
+                # common geophones, their minus times give the velocity (below)
+                lateral.add(k)
         if 1 in mean_s and -1 in mean_s and 1 / mean_s[1][0] > v1 and 1 / mean_s[-1][0] > v1:
             v = dipping_refractor(v1, 1 / mean_s[1][0], 1 / mean_s[-1][0])["velocity_m_s"]
             # one sigma from the slowness errors (the formula is close to the harmonic mean)
@@ -734,14 +865,14 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
         notes = []
         shot_depths = []
         per_layer = [[] for _ in range(n_layers - 1)]
-        for f, lob in zip(fits, layer_of_branch):
+        for i, (f, lob) in enumerate(zip(fits, layer_of_branch)):
             if not f.ok:
                 continue
             seen = sorted(set(x for x in lob if x > 1))
             if not seen:
                 continue
             vs = [velocities[0]] + [velocities[k - 1] for k in seen]
-            ts = [branch_of(f, lob, k).intercept_s for k in seen]
+            ts = [intercept_override.get((i, k), (branch_of(f, lob, k).intercept_s,))[0] for k in seen]
             h = intercept_thicknesses(vs, ts)
             depths, top, prev = {}, 0.0, 1
             for k, hk in zip(seen, h):
@@ -750,7 +881,8 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                 if k == prev + 1 and math.isfinite(hk):
                     # weight by the intercept's variance: a short branch has a poor intercept
                     b = branch_of(f, lob, k)
-                    sig_h = b.intercept_sigma_s / (2 * _cos_term(velocities[k - 2], velocities[k - 1]))
+                    sig_t = intercept_override.get((i, k), (None, b.intercept_sigma_s))[1]
+                    sig_h = sig_t / (2 * _cos_term(velocities[k - 2], velocities[k - 1]))
                     weight = 1.0 / sig_h**2 if math.isfinite(sig_h) and sig_h > 0 else 1.0
                     per_layer[k - 2].append((float(hk), weight))
                 prev = k
