@@ -15,18 +15,14 @@ import pytest
 from tomo.cli import main
 from tomo.survey import Picks, write_picks
 
+from helpers import pairs
+
 V1, V2, H = 500.0, 2000.0, 5.0
 
 
 def write_line(path, shots, gx, noise=2e-4, seed=0, bad=None):
     ti = 2 * H * math.sqrt(V2**2 - V1**2) / (V1 * V2)
-    sx, rx = [], []
-    for s in shots:
-        for g in gx:
-            if abs(g - s) > 1e-9:
-                sx.append(s)
-                rx.append(g)
-    sx, rx = np.array(sx), np.array(rx)
+    sx, rx = pairs(shots, gx)
     x = np.abs(rx - sx)
     t = np.minimum(x / V1, x / V2 + ti) + np.random.default_rng(seed).normal(0, noise, sx.size)
     picks = Picks(sx, np.zeros(sx.size), rx, np.zeros(sx.size), t, np.full(sx.size, noise))

@@ -23,18 +23,14 @@ from tomo.model import Layer, Model
 from tomo.survey import Picks, Terrain, flat_terrain
 from tomo.synth import synthetic_times
 
+from helpers import pairs
+
 
 def two_layer_picks(v1, v2, h, gx, shots, noise_s=0.0, seed=0):
     """Closed-form first arrivals over one horizontal refractor [TGS]:
     t = min(x/V1, x/V2 + 2 h sqrt(V2^2 - V1^2)/(V1 V2))."""
     ti = 2 * h * math.sqrt(v2**2 - v1**2) / (v1 * v2)
-    sx, rx = [], []
-    for s in shots:
-        for g in gx:
-            if abs(g - s) > 1e-9:
-                sx.append(s)
-                rx.append(g)
-    sx, rx = np.array(sx), np.array(rx)
+    sx, rx = pairs(shots, gx)
     x = np.abs(rx - sx)
     t = np.minimum(x / v1, x / v2 + ti)
     sigma = max(noise_s, 1e-4)

@@ -16,6 +16,8 @@ import pytest
 from tomo.qc import check_line
 from tomo.survey import Picks
 
+from helpers import pairs
+
 
 def two_layer(x):
     # 500 over 2000 m/s, 5 m: t_i = 2 h sqrt(V2^2 - V1^2)/(V1 V2)
@@ -25,13 +27,7 @@ def two_layer(x):
 
 
 def line(shots, gx, noise=2e-4, seed=0):
-    sx, rx = [], []
-    for s in shots:
-        for g in gx:
-            if abs(g - s) > 1e-9:
-                sx.append(s)
-                rx.append(g)
-    sx, rx = np.array(sx), np.array(rx)
+    sx, rx = pairs(shots, gx)
     t = two_layer(rx - sx) + np.random.default_rng(seed).normal(0, noise, sx.size)
     return Picks(sx, np.zeros(sx.size), rx, np.zeros(sx.size), t, np.full(sx.size, noise), line=np.arange(sx.size) + 2)
 
