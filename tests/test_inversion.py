@@ -54,7 +54,22 @@ def iso_depth(mesh, velocity, value):
     return out
 
 
-def check_recovery(run, mesh, true_depth, v1, v2, settings):
+def reversed_head_waves(x, depth, v1, v2, shots=SHOTS, geophones=GEOPHONES):
+    """Fewer of the left-to-right and right-to-left head-wave paths (shot-geophone
+    pairs beyond the crossover distance) that pass along the refractor under each x."""
+    S, G = (a.ravel() for a in np.meshgrid(np.asarray(shots, float), geophones, indexing="ij"))
+    out = np.zeros(len(x), int)
+    for j, (xj, h, va) in enumerate(zip(x, np.broadcast_to(depth, len(x)), np.broadcast_to(v1, len(x)))):
+        x_c = 2.0 * h * np.sqrt((v2 + va) / (v2 - va))
+        a = h * np.tan(np.arcsin(va / v2))
+        head = np.abs(G - S) > x_c
+        n_right = np.sum(head & (G > S) & (S + a <= xj) & (xj <= G - a))
+        n_left = np.sum(head & (G < S) & (G + a <= xj) & (xj <= S - a))
+        out[j] = min(n_right, n_left)
+    return out
+
+
+def check_recovery(run, mesh, true_depth, v1, v2, settings, v1_above=None):
     v = run.velocity
     # no NaN in the ground, all velocities within the bounds actually used
     assert np.all(np.isfinite(v[mesh.ground])) and np.all(np.isnan(v[~mesh.ground]))
@@ -68,23 +83,29 @@ def check_recovery(run, mesh, true_depth, v1, v2, settings):
     # log-velocity, and smoothing spreads a step symmetrically in log v (common
     # practice for reading a refractor from a tomogram; calibrate against boreholes).
     depth = iso_depth(mesh, v, np.sqrt(v1 * v2))
-    # good coverage: within the spread between the inner shots, and at least 5 m of ray
-    # in the three model cells around the true refractor depth (a handful of rays)
-    row = np.clip(np.searchsorted(-mesh.z, -(mesh.ground_surface - true_depth)), 1, mesh.nz - 2)
-    cols = np.arange(mesh.nx)
-    cov = sum(run.coverage[row + d, cols] for d in (-1, 0, 1))
-    good = (mesh.x > 6.0) & (mesh.x < 40.0) & (cov >= 5.0)
-    assert good.sum() >= 20, np.round(cov, 1)  # most of the 34 columns in between
+    v1_above = v1 if v1_above is None else v1_above
+    # good coverage: refractor points that first-arrival head waves sample in both
+    # directions (reversed coverage), at least 5 shot-geophone pairs each way, from the
+    # survey geometry and the true model (independent of the tomogram, whose own
+    # refractor the rays follow). A head wave is the first arrival beyond the crossover
+    # distance x_c = 2H sqrt((V2+V1)/(V2-V1)) and runs along the refractor from
+    # H tan(theta_c) past the shot to H tan(theta_c) before the geophone,
+    # theta_c = asin(V1/V2) (Telford, Geldart & Sheriff 1990, Applied Geophysics, 2nd
+    # ed., sec. 4.3; flat-layer formulas applied with the local depth H, and V1 the
+    # overburden velocity just above the refractor).
+    good = reversed_head_waves(mesh.x, true_depth, v1_above, v2) >= 5
+    assert good.sum() >= 30, good.sum()  # most of the 46 columns under the spread
     err = np.abs(depth[good] - true_depth[good]) / true_depth[good]
     # Issue 4 asks for within 10 % where coverage is good. Measured with noise seeds 1-6
-    # on both lines (default settings: stop at chi2 <= 1.1, smooth_x 0.5): median error
-    # 3-10 %, worst column 8.6-12.8 % (on the flat shoulders toward the line ends and at
+    # on both lines (default settings: stop at chi2 <= 1.1, smooth_x 0.5; good columns
+    # x = 2.5-43.5 m on the trough line, 1.5-40.5 m on the weathered one): median error
+    # 4-10 %, worst column 8.6-12.8 % (on the flat shoulders toward the line ends and at
     # the bottom of the trough, where smoothing rounds the surface; the weathered
-    # zone's contour sits 5-10 % shallow all along, since its overburden velocity
-    # grows to 450-530 m/s at the interface while the contour uses the top 350 m/s).
-    # With a 1 m cell over 8 m of cover, 10 % is less than a cell. Asserted so that it
-    # holds for any of those seeds: median within 10 %, no column beyond 14 % (the
-    # measured worst plus about 1 %).
+    # zone's contour sits 5-10 % shallow along most of the line, since its overburden
+    # velocity grows to 450-530 m/s at the interface while the contour uses the top
+    # 350 m/s). With 1 m cells over 8 m of cover, 10 % is less than a cell. Asserted so
+    # that it holds for any of those seeds: median within 10 %, no column beyond 14 %
+    # (the measured worst plus about 1 %).
     assert np.median(err) <= 0.10, np.round(err, 3)
     assert err.max() <= 0.14, np.round(err, 3)
 
@@ -110,7 +131,8 @@ def test_recovers_a_low_velocity_weathered_zone():
     mesh = inversion_mesh()
     settings = InversionSettings(workers=1)
     run = invert(picks, mesh, gradient_start(picks, mesh), settings)
-    check_recovery(run, mesh, np.interp(mesh.x, base[:, 0], base[:, 1]), v1, v2, settings)
+    true_depth = np.interp(mesh.x, base[:, 0], base[:, 1])
+    check_recovery(run, mesh, true_depth, v1, v2, settings, v1_above=v1 + 20.0 * true_depth)
 
 
 def test_layered_start_fits_the_picks():
