@@ -213,18 +213,18 @@ def test_output_folder_not_writable(tmp_path, run_file, capsys):
 
 
 def test_walkthrough_python_example_runs(tmp_path, base_run, monkeypatch, capsys):
-    # the "reading a run file from Python" example of docs/walkthrough.md, on a small
+    # the "reading a run file from Python" example of README.md, on a small
     # run whose velocities (1000-3000 m/s) include the example's 2100 m/s contour
     import re
     from dataclasses import replace
     from pathlib import Path
 
-    text = (Path(__file__).resolve().parents[1] / "docs" / "walkthrough.md").read_text(encoding="utf-8")
+    text = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
     code = re.search(r"```python\n(.*?)```", text, re.S).group(1)
     run = base_run[0]
     (tmp_path / "tomo-demo").mkdir()
     write_run(tmp_path / "tomo-demo" / "run.h5", replace(run, velocity=run.velocity * 2.0))
     monkeypatch.chdir(tmp_path)
-    exec(compile(code, "walkthrough.md", "exec"), {})
+    exec(compile(code, "README.md", "exec"), {})
     out = capsys.readouterr().out
     assert "chi2" in out and "m deep" in out
