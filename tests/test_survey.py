@@ -187,3 +187,14 @@ def test_mesh_must_cover_stations():
     from tomo.mesh import MeshSpec
     with pytest.raises(InputError, match="outside the mesh"):
         mesh_for_picks(p, t, MeshSpec(depth_m=20.0))
+
+
+def test_default_cell_follows_the_geophone_spacing_with_shots_between_geophones():
+    # shots at half stations (common practice) must not halve the default cell
+    t = Terrain(np.array([-20.0, 80.0]), np.array([0.0, 0.0]))
+    geophones = np.arange(24) * 2.5
+    shots = np.arange(-1.25, 60.0, 2.5)
+    sx, rx = np.meshgrid(shots, geophones, indexing="ij")
+    p = Picks(sx.ravel(), np.zeros(sx.size), rx.ravel(), np.zeros(sx.size))
+    mesh, spec = mesh_for_picks(p, t)
+    assert spec.cell_m == 0.5  # a quarter of 2.5 m, rounded down to 1-2-5

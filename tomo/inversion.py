@@ -887,11 +887,9 @@ def default_mesh_spec(picks, spec=None):
     """
     from dataclasses import replace as _replace
 
-    from .mesh import MeshSpec, _nice
+    from .mesh import MeshSpec, _nice, station_spacing
 
     spec = spec or MeshSpec()
     if spec.cell_m is None:
-        xs = np.unique(np.round(np.concatenate([picks.source_x, picks.receiver_x]), 4))
-        spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
-        spec = _replace(spec, cell_m=_nice(max(spacing, 1e-3) / 2.0))
+        spec = _replace(spec, cell_m=_nice(max(station_spacing(picks), 1e-3) / 2.0))
     return spec

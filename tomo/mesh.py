@@ -35,7 +35,8 @@ import scipy.sparse as sp
 from .errors import InputError
 from .survey import Terrain, flat_terrain
 
-__all__ = ["Mesh", "MeshSpec", "read_mesh_spec", "auto_mesh_spec", "build_mesh", "mesh_for_picks"]
+__all__ = ["Mesh", "MeshSpec", "read_mesh_spec", "auto_mesh_spec", "build_mesh", "mesh_for_picks",
+           "station_spacing"]
 
 
 @dataclass(frozen=True)
@@ -97,13 +98,23 @@ def _nice(value):
     return 10.0**exponent
 
 
-def auto_mesh_spec(station_x, max_offset, spec=None):
+def station_spacing(picks):
+    """Median geophone spacing (m); from shots and geophones together when there are
+    fewer than three geophones (a line recorded the other way round)."""
+    xs = np.unique(np.round(picks.receiver_x, 4))
+    if xs.size < 3:
+        xs = np.unique(np.round(np.concatenate([picks.source_x, picks.receiver_x]), 4))
+    spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
+    return spacing if spacing > 0 else 1.0
+
+
+def auto_mesh_spec(station_x, max_offset, spec=None, spacing=None):
     """Fill the unset fields of ``spec`` from the survey.
 
     Defaults (common practice, rules of thumb):
 
-    - cell = a quarter of the median station spacing (shots and geophones together),
-      rounded down to 1-2-5;
+    - cell = a quarter of the median station spacing (``spacing``, else from
+      ``station_x``), rounded down to 1-2-5;
     - depth = a third of the longest offset below the lowest ground (a refraction
       survey rarely sees deeper than a quarter to a third of its longest offset);
     - padding = two station spacings beyond the outermost stations;
@@ -112,8 +123,9 @@ def auto_mesh_spec(station_x, max_offset, spec=None):
       see tests/test_forward.py and benchmarks/forward.py).
     """
     spec = spec or MeshSpec()
-    xs = np.unique(np.round(np.asarray(station_x, float), 4))
-    spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
+    if spacing is None:
+        xs = np.unique(np.round(np.asarray(station_x, float), 4))
+        spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
     if spacing <= 0:
         spacing = 1.0
     cell = spec.cell_m or _nice(spacing / 4.0)
@@ -325,7 +337,7 @@ def mesh_for_picks(picks, terrain=None, spec=None):
     """
     xs = np.concatenate([picks.source_x, picks.receiver_x])
     max_offset = float(np.max(np.abs(picks.offset))) if len(picks) else 10.0
-    spec = auto_mesh_spec(xs, max_offset, spec)
+    spec = auto_mesh_spec(xs, max_offset, spec, spacing=station_spacing(picks))
     if terrain is None:
         pad = spec.padding_m + spec.cell_m
         terrain = flat_terrain(xs.min() - pad - spec.cell_m, xs.max() + pad + spec.cell_m, 0.0)
