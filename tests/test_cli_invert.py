@@ -51,7 +51,6 @@ def test_invert_writes_a_run_file(pick_file, tmp_path, capsys):
 
 
 def test_default_layered_start(pick_file, tmp_path, capsys):
-    pytest.importorskip("tomo.layered")
     picks, mesh = pick_file
     out = tmp_path / "run.h5"
     status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1"])

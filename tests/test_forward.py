@@ -18,7 +18,7 @@ from tomo.mesh import MeshSpec, build_mesh, mesh_for_picks
 from tomo.model import Body, Layer, Model
 from tomo.survey import Picks, Terrain, flat_terrain
 
-from helpers import line_picks
+from helpers import head_wave_times, line_picks
 
 SPACING = 2.5
 RECEIVERS = np.arange(48) * SPACING
@@ -93,19 +93,6 @@ def test_linear_gradient_closed_form():
     exact = np.arccosh(1 + k**2 * r**2 / (2 * vs * vr)) / k
     ok, err, tol = within(result.time_s, exact, 0.005, 0.2e-3, r, 2 * mesh.cell)
     assert ok.all(), f"worst error {err.max() * 1e3:.3f} ms"
-
-
-def head_wave_times(offset, velocities, thicknesses):
-    """First arrival over horizontal layers: the earliest of the direct wave and each head
-    wave t_n = x / V_n + sum_i 2 h_i sqrt(V_n^2 - V_i^2) / (V_i V_n)
-    (Telford, Geldart & Sheriff 1990, Applied Geophysics, sec. 4.3, eq. for n layers)."""
-    x = np.abs(offset)
-    times = [x / velocities[0]]
-    for n in range(1, len(velocities)):
-        vn = velocities[n]
-        delay = sum(2 * thicknesses[i] * np.sqrt(vn**2 - velocities[i] ** 2) / (velocities[i] * vn) for i in range(n))
-        times.append(x / vn + delay)
-    return np.min(times, axis=0)
 
 
 @pytest.mark.parametrize("velocities,thicknesses", [

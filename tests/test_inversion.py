@@ -137,9 +137,9 @@ def test_recovers_a_low_velocity_weathered_zone():
 
 def test_layered_start_fits_the_picks():
     # Only the fit is checked: the depths follow the layered interpretation's, which on
-    # this small line is off (refractor 3.7 km/s against 2 km/s true, measured); the
-    # tomogram fits the picks equally well near it (non-uniqueness).
-    pytest.importorskip("tomo.layered")
+    # this small line has the refractor 5-14 % fast over noise seeds 1-6 (2.1-2.3 km/s
+    # against 2 km/s true, measured); the tomogram fits the picks near it equally well
+    # (non-uniqueness).
     from tomo.starting import layered_start
 
     base = np.array([[0.0, 8.0], [12.0, 8.0], [23.0, 12.0], [34.0, 8.0], [46.0, 8.0]])

@@ -21,17 +21,7 @@ from tomo.layered import (
 from tomo.mesh import build_mesh
 from tomo.survey import Picks, Terrain, flat_terrain
 
-
-def head_wave_time(x, velocities, thicknesses):
-    """First arrival over horizontal layers, written out here from [TGS] eq. for t_n:
-    t_n = x/V_n + sum_{i<n} 2 h_i sqrt(V_n^2 - V_i^2)/(V_i V_n); the least over n."""
-    x = np.abs(np.asarray(x, float))
-    times = [x / velocities[0]]
-    for n in range(1, len(velocities)):
-        vn = velocities[n]
-        delay = sum(2 * thicknesses[i] * math.sqrt(vn**2 - velocities[i] ** 2) / (velocities[i] * vn) for i in range(n))
-        times.append(x / vn + delay)
-    return np.min(times, axis=0)
+from helpers import head_wave_times
 
 
 def line_picks(velocities, thicknesses, n_geophones, spacing, noise_s, seed, shots=None):
@@ -46,7 +36,7 @@ def line_picks(velocities, thicknesses, n_geophones, spacing, noise_s, seed, sho
     sx = np.repeat(shots, gx.size)
     rx = np.tile(gx, len(shots))
     rng = np.random.default_rng(seed)
-    t = head_wave_time(rx - sx, velocities, thicknesses) + rng.normal(0.0, noise_s, sx.size)
+    t = head_wave_times(rx - sx, velocities, thicknesses) + rng.normal(0.0, noise_s, sx.size)
     return Picks(sx, np.zeros(sx.size), rx, np.zeros(sx.size), t, np.full(sx.size, noise_s))
 
 
@@ -207,10 +197,10 @@ def test_bad_shots_get_messages_and_the_rest_is_interpreted():
     for r in np.concatenate([left, right]):
         extra_sx.append(47.0)
         extra_rx.append(r)
-        extra_t.append(head_wave_time(r - 47.0, v, h))
+        extra_t.append(head_wave_times(r - 47.0, v, h))
     # shot at 31 m: right side times decreasing with offset (picks entered reversed)
     rr = gx[gx > 31.0]
-    tt = head_wave_time(rr - 31.0, v, h)[::-1]
+    tt = head_wave_times(rr - 31.0, v, h)[::-1]
     extra_sx += [31.0] * rr.size
     extra_rx += list(rr)
     extra_t += list(tt)

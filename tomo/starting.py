@@ -100,14 +100,10 @@ def layered_start(picks, mesh, terrain=None):
     ``tomo.layered.starting_model(result, mesh)``. Returns the velocity array and the
     interpretation as a dict (stored in the run file).
     """
-    try:
-        from . import layered
-    except ImportError as exc:  # the layered stage is missing from this installation
-        raise InputError(f"the layered start is not available ({exc}); use the gradient start") from None
+    from . import layered
+
     result = layered.interpret_line(picks, terrain=terrain)
     v = np.asarray(layered.starting_model(result, mesh), float)
-    if v.shape != mesh.shape:
-        raise InputError(f"layered starting model has shape {v.shape}, expected {mesh.shape}")
     v = np.where(mesh.ground, v, np.nan)
     if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):
         raise InputError("the layered interpretation gave no usable velocity for every ground cell; "

@@ -313,15 +313,8 @@ def read_picks(path, terrain=None, layout=False):
 
 
 def _place_on_ground(x, z, terrain, path, lines, role, notices):
-    field_x = f"{role}_x"
+    """Elevations for stations at ``x`` (already checked to lie on the terrain)."""
     if terrain is not None:
-        inside = terrain.covers(x)
-        if not np.all(inside):
-            k = int(np.flatnonzero(~inside)[0])
-            raise InputError(
-                f"{role} at x = {x[k]:g} m is outside the terrain ({terrain.x[0]:g} to {terrain.x[-1]:g} m)",
-                path=path, line=lines[k], field=field_x,
-            )
         ground = terrain.elevation(x)
         if z is None:
             return ground
