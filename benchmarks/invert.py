@@ -68,12 +68,17 @@ def main(argv=None):
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--max-iterations", type=int, default=InversionSettings().max_iterations)
     parser.add_argument("--max-reduction", type=float, default=None)
+    parser.add_argument("--start", choices=("layered", "gradient"), default="layered")
+    parser.add_argument("--booking", choices=("nearest", "bilinear"), default=None,
+                        help="ray-length booking (default: the library's)")
     args = parser.parse_args(argv)
     rows = []
     for case in args.cases:
         picks, mesh = make_line(case)
         t_start = time.perf_counter()
         try:
+            if args.start == "gradient":
+                raise ValueError("asked for")
             start, _ = layered_start(picks, mesh)
             kind = "layered"
         except Exception as exc:  # the layered stage may refuse a line; fall back
@@ -84,6 +89,8 @@ def main(argv=None):
         settings = InversionSettings(workers=args.workers, max_iterations=args.max_iterations)
         if args.max_reduction is not None:
             settings = replace(settings, max_reduction=args.max_reduction)
+        if args.booking is not None:
+            settings = replace(settings, ray_booking=args.booking)
         last = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "pass_wall_s": 0.0, "passes": 0}
 
         def progress(info):

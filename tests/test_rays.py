@@ -75,9 +75,12 @@ def _cells_times(mesh, cell_slowness, rz):
     return sample_field(mesh, field, RECEIVERS, rz), field
 
 
+@pytest.mark.parametrize("refine", [2, 3])
 @pytest.mark.parametrize("where", ["overburden block", "refractor block", "smooth everywhere"])
-def test_sensitivity_matrix_matches_finite_differences(mesh, where):
-    # Two layers, 700 over 1500 m/s at 3 m: direct, refracted and diving paths.
+def test_sensitivity_matrix_matches_finite_differences(where, refine):
+    # Two layers, 700 over 1500 m/s at 3 m: direct, refracted and diving paths; forward
+    # grids of 2 and 3 node intervals per cell (the interface lies on a node row).
+    mesh = build_mesh(0.0, 48.0, flat_terrain(-20.0, 70.0), CELL, 16.0, refine=refine, padding=2.0)
     rz = np.zeros_like(RECEIVERS)
     s = np.where(mesh.depth > 3.0, 1.0 / 1500.0, 1.0 / 700.0)
     t1, field = _cells_times(mesh, s, rz)
@@ -85,7 +88,7 @@ def test_sensitivity_matrix_matches_finite_differences(mesh, where):
     ds = np.zeros(mesh.shape)
     # rows: cell centres at depths -0.5 (air), 0.5, 1.5, ... m; the interface is at 3 m
     if where == "overburden block":
-        ds[1:4, 10:30] = 0.01 * s[1:4, 10:30]
+        ds[1:4, 10:30] = 0.01 * s[1:4, 10:30]  # the cells just above the interface
     elif where == "refractor block":
         ds[4:7, 15:40] = 0.01 * s[4:7, 15:40]
     else:
@@ -100,18 +103,13 @@ def test_sensitivity_matrix_matches_finite_differences(mesh, where):
     # principle; Nolet 2008, A Breakdown of Seismic Tomography, sec. 2.6). Issue 4 asks for
     # the prediction within 5 % of the finite difference of the forward solver; measured
     # over all picks (relative L2 norm), since a pick whose ray grazes the block edge has
-    # a tiny change whose relative error means little.
+    # a tiny change whose relative error means little. Default (bilinear) booking,
+    # measured 0.9-4.8 % over these six cases; the nearest-node option reaches 9.6 %
+    # for the block above the interface with 2 intervals per cell, hence not the default.
     error = np.linalg.norm(predicted - fd) / np.linalg.norm(fd)
-    if where == "overburden block":
-        # A block in the cells just above the interface, which lies on a node row: the
-        # default nearest-node booking measures 9 % here (the solver's head wave feels
-        # the averaged interface nodes), so 10 % is asserted for it; sharing lengths
-        # bilinearly among the four nodes around each piece meets the 5 % target.
-        assert error <= 0.10
-        shared = trace_rays(mesh, field, RECEIVERS, rz, booking="bilinear").matrix @ ds.ravel()
-        assert np.linalg.norm(shared - fd) <= 0.05 * np.linalg.norm(fd)
-    else:
-        assert error <= 0.05
+    assert error <= 0.05
+    nearest = trace_rays(mesh, field, RECEIVERS, rz, booking="nearest").matrix @ ds.ravel()
+    assert np.linalg.norm(nearest - fd) <= 0.10 * np.linalg.norm(fd)
 
 
 def test_sensitivity_with_the_inversion_grid():
@@ -130,3 +128,36 @@ def test_sensitivity_with_the_inversion_grid():
     fd = t2 - t1
     assert np.abs(fd).max() > 1e-5  # the perturbation is on the rays
     assert np.linalg.norm(rays.matrix @ ds.ravel() - fd) <= 0.05 * np.linalg.norm(fd)
+
+
+@pytest.mark.parametrize("refine", [1, 2, 3])
+@pytest.mark.parametrize("booking", ["bilinear", "nearest"])
+def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
+    # The booking works per axis in cell space; it must equal booking to the forward
+    # nodes (bilinear weights or the nearest node) followed by P^T, P = cell_to_node
+    # (the definition in tomo/rays.py), for points below the surface cells.
+    from tomo.rays import _book_cells
+
+    mesh = build_mesh(0.0, 20.0, flat_terrain(-5.0, 25.0), CELL, 8.0, refine=refine, padding=1.0)
+    rng = np.random.default_rng(5)
+    n = 400
+    pts = np.column_stack([rng.uniform(mesh.x0, mesh.x1, n), rng.uniform(mesh.z_bottom, -1.0, n)])
+    pts[:20, 0] = mesh.x0 + CELL * rng.integers(0, mesh.nx, 20)  # exactly on cell edges
+    pts[20:40, 1] = -CELL * rng.integers(1, mesh.nz - 1, 20)
+    lens = rng.uniform(0.1, 1.0, n)
+    rows = rng.integers(0, 7, n)
+    got = _book_cells(mesh, rows, pts, lens, 7, booking, np.arange(mesh.ground.size)).toarray()
+    ny, nx = mesh.node_shape
+    fj = (pts[:, 0] - mesh.x0) / mesh.h
+    fi = (mesh.z_top - pts[:, 1]) / mesh.h
+    nodes = np.zeros((7, ny * nx))
+    if booking == "nearest":
+        np.add.at(nodes, (rows, np.rint(fi).astype(int) * nx + np.rint(fj).astype(int)), lens)
+    else:
+        j, i = np.minimum(np.floor(fj).astype(int), nx - 2), np.minimum(np.floor(fi).astype(int), ny - 2)
+        tx, tz = fj - j, fi - i
+        for di, dj, w in ((0, 0, (1 - tz) * (1 - tx)), (0, 1, (1 - tz) * tx), (1, 0, tz * (1 - tx)), (1, 1, tz * tx)):
+            np.add.at(nodes, (rows, (i + di) * nx + j + dj), w * lens)
+    expected = nodes @ mesh.cell_to_node.toarray()
+    np.testing.assert_allclose(got, expected, atol=1e-12)
+    np.testing.assert_allclose(got.sum(axis=1), np.bincount(rows, lens, minlength=7))

@@ -293,26 +293,11 @@ def _pass_chunk(chunk):
     gz = np.stack([g[1] for g in grads])
     del grads
     rays = trace_many(mesh, gx, gz, np.array([f.source for f in fields_]), np.array([f.radius for f in fields_]),
-                      starts, which, step=opts["ray_step"], to_cells=_STATE["to_cells"],
+                      starts, which, step=opts["ray_step"], ground_only=True,
                       booking=opts["ray_booking"])
     t2 = _time.perf_counter()
     fallbacks = [f.source for f in fields_ if f.fallback]
     return rows, times, rays.matrix, t1 - t0, t2 - t1, fallbacks, rays.unfinished
-
-
-_GROUND_COLUMNS = {}
-
-
-def _ground_columns(mesh):
-    """``mesh.cell_to_node`` restricted to the ground cells (cached per mesh)."""
-    key = id(mesh)
-    hit = _GROUND_COLUMNS.get(key)
-    if hit is None or hit[0] is not mesh:
-        gidx = np.flatnonzero(mesh.ground.ravel())
-        _GROUND_COLUMNS.clear()
-        hit = (mesh, mesh.cell_to_node[:, gidx].tocsr())
-        _GROUND_COLUMNS[key] = hit
-    return hit[1]
 
 
 def forward_pass(mesh, cell_slowness, picks, settings=None):
@@ -340,8 +325,7 @@ def forward_pass(mesh, cell_slowness, picks, settings=None):
     n_chunks = min(len(origins), max(1, workers * 2)) if workers > 1 else 1
     order = np.argsort([-g.size for g in groups])  # big groups first
     chunks = [sorted(order[k::n_chunks].tolist()) for k in range(n_chunks)]
-    to_cells = _ground_columns(mesh)  # built once, before forking
-    _STATE.update(to_cells=to_cells, mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
+    _STATE.update(mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
                   opts={"order": settings.order, "source_radius": settings.source_radius,
                         "ray_step": settings.ray_step, "ray_booking": settings.ray_booking})
     try:

@@ -10,11 +10,12 @@ that circle the field is exactly r s, so the ray there is straight).
 Sensitivity. To first order, a slowness perturbation ds changes a time by the integral
 of ds along the unperturbed ray (Fermat's principle; Nolet 2008, A Breakdown of Seismic
 Tomography, sec. 2.6). The fast-marching solver sees one slowness per forward node and
-node slowness = P @ cell slowness (``Mesh.cell_to_node``). We therefore book each
-piece of ray (at most one node spacing long) to the node nearest its midpoint, or
-share it among the four nodes around it with bilinear weights (``booking``), and map
-node lengths to model cells by P^T: row p of the matrix holds the
-length (m) of ray p that each model cell's slowness acts on, so
+node slowness = P @ cell slowness (``Mesh.cell_to_node``). We therefore share each
+piece of ray (at most one node spacing long) among the four nodes around its midpoint
+with bilinear weights, or give it to the nearest node (``booking``), and map node
+lengths to model cells by P^T (done directly in cell space, :func:`_book_cells`): row
+p of the matrix holds the length (m) of ray p that each model cell's slowness acts on,
+so
 
     dt_p = sum_c G[p, c] ds_c        (s, with ds in s/m).
 
@@ -37,12 +38,14 @@ __all__ = ["Rays", "time_gradient", "trace_rays", "trace_many", "DEFAULT_STEP", 
 #: cell of the exact arcs in tests/test_rays.py, and within 5 % of finite differences).
 DEFAULT_STEP = None
 
-#: How a ray piece's length is shared among forward nodes: "nearest" node (default,
-#: fast) or "bilinear" over the four around it (matches the solver's interpolation;
-#: about three times the booking cost). Against finite differences of the forward
-#: solver for a 1 % block just above a sharp interface: nearest 9 %, bilinear 5 %;
-#: elsewhere both within 3 % (tests/test_rays.py).
-DEFAULT_BOOKING = "nearest"
+#: How a ray piece's length is shared among forward nodes: "bilinear" over the four
+#: around it (default; matches the solver's interpolation between nodes) or the
+#: "nearest" node. Against finite differences of the forward solver
+#: (tests/test_rays.py, relative L2 error over all picks): for a 1 % block in the
+#: cells just above a sharp interface, bilinear 4.8 % and nearest 9.6 % with 2 node
+#: intervals per cell, 3.5 % and 2.4 % with 3; elsewhere both within 3 %. Bilinear
+#: sharing costs about twice the booking time of nearest (benchmarks/invert.py).
+DEFAULT_BOOKING = "bilinear"
 
 
 @dataclass
@@ -130,7 +133,7 @@ def trace_rays(mesh, field, x, z, keep_paths=False, step=DEFAULT_STEP, booking=D
 
 
 def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, step=DEFAULT_STEP,
-               to_cells=None, booking=DEFAULT_BOOKING):
+               ground_only=False, booking=DEFAULT_BOOKING):
     """Trace rays through several travel-time fields at once (vectorised over all rays).
 
     Parameters
@@ -148,9 +151,9 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
         Field of each ray.
     booking : {"nearest", "bilinear"}
         How ray lengths are shared among forward nodes (see :data:`DEFAULT_BOOKING`).
-    to_cells : sparse matrix (n_nodes, n_cols), optional
-        Map from node lengths to matrix columns (default ``mesh.cell_to_node``, all
-        cells; the inversion passes its columns for the ground cells only).
+    ground_only : bool
+        Matrix columns for the ground cells only (in row-major order of
+        ``mesh.ground``, as the inversion's unknowns) instead of all cells.
 
     Returns
     -------
@@ -233,25 +236,26 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
         if keep_paths:
             for r, q in zip(ids, new):
                 paths[r].append(q)
-    # steps: book each in pieces no longer than a node spacing, at their midpoints
+    # steps: book each in pieces no longer than a node spacing, at their midpoints, in
+    # path order ray by ray (so that consecutive pieces in one cell merge cheaply)
     rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)
-    a = np.concatenate(seg_from) if seg_from else np.zeros((0, 2))
-    b = np.concatenate(seg_to) if seg_to else np.zeros((0, 2))
+    order = np.argsort(rows_s, kind="stable")
+    rows_s = rows_s[order]
+    a = np.concatenate(seg_from)[order] if seg_from else np.zeros((0, 2))
+    b = np.concatenate(seg_to)[order] if seg_to else np.zeros((0, 2))
     sub = max(int(np.ceil(step - 1e-9)), 1)
-    step_len = np.hypot(b[:, 0] - a[:, 0], b[:, 1] - a[:, 1]) / sub
-    rows = [np.concatenate(straight_ray)] if straight_ray else []
-    mids = [np.concatenate(straight_mid)] if straight_mid else []
-    lens = [np.concatenate(straight_len)] if straight_len else []
-    for q in range(sub):
-        frac = (q + 0.5) / sub
-        rows.append(rows_s)
-        mids.append(a + frac * (b - a))
-        lens.append(step_len)
-    rows = np.concatenate(rows) if rows else np.zeros(0, int)
-    mids = np.concatenate(mids) if mids else np.zeros((0, 2))
-    lens = np.concatenate(lens) if lens else np.zeros(0)
-    book = _book_bilinear if booking == "bilinear" else _book_nearest
-    matrix = book(mesh, rows, mids, lens, n, mesh.cell_to_node if to_cells is None else to_cells)
+    frac = (np.arange(sub) + 0.5) / sub
+    step_mids = (a[:, None, :] + frac[None, :, None] * (b - a)[:, None, :]).reshape(-1, 2)
+    step_len = np.repeat(np.hypot(b[:, 0] - a[:, 0], b[:, 1] - a[:, 1]) / sub, sub)
+    rows = np.concatenate([np.repeat(rows_s, sub)] + straight_ray)
+    mids = np.concatenate([step_mids] + straight_mid)
+    lens = np.concatenate([step_len] + straight_len)
+    if ground_only:
+        columns = np.full(mesh.ground.size, -1)
+        columns[mesh.ground.ravel()] = np.arange(int(mesh.ground.sum()))
+    else:
+        columns = np.arange(mesh.ground.size)
+    matrix = _book_cells(mesh, rows, mids, lens, n, booking, columns)
     length = np.bincount(rows, weights=lens, minlength=n)
     out_paths = [np.array(q) for q in paths] if keep_paths else None
     return Rays(matrix, length, out_paths, unfinished)
@@ -270,38 +274,105 @@ def _straight(p, s, ray_ids, ds, out_ray, out_mid, out_len):
     out_len.append(d[reps] / pieces[reps])
 
 
-def _book_bilinear(mesh, rows, mids, lens, n_rays, to_cells):
-    """Lengths shared among the four forward nodes around each piece's midpoint (bilinear
-    weights, renormalised over the solved nodes), then mapped to cells by P^T.
+def _axis_weights(f, n_cells, r, nearest):
+    """Weights of the model cells along one axis for points at node coordinate ``f``.
 
-    Bilinear sharing matches the solver's own interpolation between nodes; against
-    finite differences it halves the error of booking to the nearest node next to a
-    sharp interface (measured in tests/test_rays.py).
+    The point lies between nodes j0 and j0 + 1 (fraction t); node j0 + t contributes
+    bilinearly (or the nearer one fully), and a node on a cell edge passes its share on
+    half to each of the two cells it touches, as ``Mesh.cell_to_node`` averages them.
+    Returns the cell c containing the point and the weights of cells c - 1 and c + 1
+    (c gets the rest); neighbours outside the grid give their share to c.
     """
-    h = mesh.h
-    ny, nx = mesh.node_shape
-    fj = (mids[:, 0] - mesh.x0) / h
-    fi = (mesh.z_top - mids[:, 1]) / h
-    j = np.clip(np.floor(fj).astype(int), 0, nx - 2)
-    i = np.clip(np.floor(fi).astype(int), 0, ny - 2)
-    tx = np.clip(fj - j, 0.0, 1.0)
-    tz = np.clip(fi - i, 0.0, 1.0)
-    base = i * nx + j
-    cols = np.concatenate([base, base + 1, base + nx, base + nx + 1])
-    w = np.concatenate([(1 - tx) * (1 - tz), tx * (1 - tz), (1 - tx) * tz, tx * tz])
-    w = w * mesh.node_active.ravel()[cols]
-    total = np.bincount(np.tile(np.arange(rows.size), 4), weights=w, minlength=rows.size)
-    w = w * np.tile(lens / np.where(total > 0, total, 1.0), 4)
-    nodes = sp.csr_matrix((w, (np.tile(rows, 4), cols)), shape=(n_rays, ny * nx))
-    return (nodes @ to_cells).tocsr()
+    n_nodes = n_cells * r + 1
+    c = np.clip(np.floor(f / r).astype(int), 0, n_cells - 1)
+    j0 = np.clip(np.floor(f).astype(int), 0, n_nodes - 2)
+    t = np.clip(f - j0, 0.0, 1.0)
+    if nearest:
+        t = (t >= 0.5).astype(float)
+    left = np.where((j0 == r * c) & (c > 0), 0.5 * (1.0 - t), 0.0)
+    right = np.where((j0 + 1 == r * (c + 1)) & (c < n_cells - 1), 0.5 * t, 0.0)
+    return c, left, right
 
 
-def _book_nearest(mesh, rows, mids, lens, n_rays, to_cells):
-    """Lengths booked to the forward node nearest each piece's midpoint, then mapped to
-    cells by P^T (about three times cheaper than bilinear sharing)."""
-    h = mesh.h
-    ny, nx = mesh.node_shape
-    j = np.clip(np.rint((mids[:, 0] - mesh.x0) / h).astype(int), 0, nx - 1)
-    i = np.clip(np.rint((mesh.z_top - mids[:, 1]) / h).astype(int), 0, ny - 1)
-    nodes = sp.csr_matrix((lens, (rows, i * nx + j)), shape=(n_rays, ny * nx))
-    return (nodes @ to_cells).tocsr()
+def _book_cells(mesh, rows, mids, lens, n_rays, booking, columns, block=500_000):
+    """Book ray pieces (midpoints ``mids``, lengths ``lens``, m) to model cells.
+
+    Equivalent to booking each piece to the forward nodes around its midpoint (the
+    four around it with bilinear weights, or the nearest one) and mapping node lengths
+    to cells with P^T (P = ``Mesh.cell_to_node``), but done per axis in cell space:
+    the node-to-cell averaging is separable, so a piece touches at most four cells
+    (nine when ``refine`` is 1) and no node-sized matrix is built. Near the ground
+    surface, shares falling on air cells go to the ground cells among them, and a piece
+    with none (just under the ground in an air cell's square) goes to the highest ground
+    cell of its column, as P maps such skin nodes.
+
+    ``columns`` maps flattened cell indices to matrix columns (-1: not a column).
+    """
+    nz, nx = mesh.shape
+    r = mesh.refine
+    nearest = booking == "nearest"
+    ground = mesh.ground
+    top_ground = np.argmax(ground, axis=0)
+    flat_ground = ground.ravel()
+    # cells whose eight neighbours are ground too: no air share can arise there
+    padded = np.pad(ground, 1, constant_values=True)
+    inner = np.ones_like(ground)
+    for di in range(3):
+        for dj in range(3):
+            inner &= padded[di:di + nz, dj:dj + nx]
+    flat_inner = inner.ravel()
+    n_cols = int(columns.max()) + 1 if columns.size else 0
+
+    def axis(f, n_cells):
+        c, left, right = _axis_weights(f, n_cells, r, nearest)
+        if r == 1:
+            return c, [(0, 1.0 - left - right), (-1, left), (1, right)]
+        # with two or more node intervals per cell at most one neighbour has a share
+        return c, [(0, 1.0 - left - right), (np.where(left > 0, -1, 1), left + right)]
+
+    out_r, out_c, out_w = [], [], []
+    for s in range(0, rows.size, block):
+        sl = slice(s, s + block)
+        cx, ax = axis((mids[sl, 0] - mesh.x0) / mesh.h, nx)
+        cz, az = axis((mesh.z_top - mids[sl, 1]) / mesh.h, nz)
+        main = cz * nx + cx
+        cells, weights = [], []
+        for oz, wz in az:
+            for ox, wx in ax:
+                cells.append(main + oz * nx + ox)
+                weights.append(wz * wx)
+        edge = np.flatnonzero(~flat_inner[main])
+        if edge.size:
+            # near the surface: drop the air shares and renormalise over the ground ones
+            sub = [flat_ground[np.clip(c[edge], 0, flat_ground.size - 1)] * w[edge]
+                   for c, w in zip(cells, weights)]
+            total = np.sum(sub, axis=0)
+            lonely = total <= 0
+            sub[0] = np.where(lonely, 1.0, sub[0])
+            first = cells[0].copy()
+            first[edge] = np.where(lonely, top_ground[cx[edge]] * nx + cx[edge], first[edge])
+            cells[0] = first
+            total = np.where(lonely, 1.0, total)
+            for w, w_edge in zip(weights, sub):
+                w[edge] = w_edge / total
+        rr = rows[sl]
+        ll = lens[sl]
+        for cell, w in zip(cells, weights):
+            keep = np.flatnonzero(w > 0)
+            if keep.size == 0:
+                continue
+            ray, col, val = rr[keep], cell[keep], w[keep] * ll[keep]
+            # pieces come ray by ray in path order: add up runs in the same cell here,
+            # which leaves the sparse constructor a fraction of the entries to sort
+            new = np.empty(ray.size, bool)
+            new[0] = True
+            np.not_equal(col[1:], col[:-1], out=new[1:])
+            new[1:] |= ray[1:] != ray[:-1]
+            first = np.flatnonzero(new)
+            out_r.append(ray[first])
+            out_c.append(columns[col[first]])
+            out_w.append(np.add.reduceat(val, first))
+    data = np.concatenate(out_w) if out_w else np.zeros(0)
+    cols = np.concatenate(out_c) if out_c else np.zeros(0, int)
+    ray = np.concatenate(out_r) if out_r else np.zeros(0, int)
+    return sp.csr_matrix((data, (ray, cols)), shape=(n_rays, n_cols))
