@@ -136,7 +136,7 @@ def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
     # The booking works per axis in cell space; it must equal booking to the forward
     # nodes (bilinear weights or the nearest node) followed by P^T, P = cell_to_node
     # (the definition in tomo/rays.py), for points below the surface cells.
-    from tomo.rays import _book_cells
+    from tomo.rays import _CellBooking
 
     mesh = build_mesh(0.0, 20.0, flat_terrain(-5.0, 25.0), CELL, 8.0, refine=refine, padding=1.0)
     rng = np.random.default_rng(5)
@@ -146,7 +146,9 @@ def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
     pts[20:40, 1] = -CELL * rng.integers(1, mesh.nz - 1, 20)
     lens = rng.uniform(0.1, 1.0, n)
     rows = rng.integers(0, 7, n)
-    got = _book_cells(mesh, rows, pts, lens, 7, booking, np.arange(mesh.ground.size)).toarray()
+    booked = _CellBooking(mesh, booking, np.arange(mesh.ground.size))
+    booked.add(rows, pts, lens)
+    got = booked.matrix(7).toarray()
     ny, nx = mesh.node_shape
     fj = (pts[:, 0] - mesh.x0) / mesh.h
     fi = (mesh.z_top - pts[:, 1]) / mesh.h

@@ -127,19 +127,21 @@ def trace_rays(mesh, field, x, z, keep_paths=False, step=DEFAULT_STEP, booking=D
     gx, gz = time_gradient(mesh, field.time)
     x = np.atleast_1d(np.asarray(x, float))
     z = np.atleast_1d(np.asarray(z, float))
-    return trace_many(mesh, gx[None], gz[None], np.array([field.source]), np.array([field.radius]),
+    return trace_many(mesh, (gx + 1j * gz)[None], np.array([field.source]), np.array([field.radius]),
                       np.column_stack([x, z]), np.zeros(x.size, int), keep_paths=keep_paths, step=step,
                       booking=booking)
 
 
-def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, step=DEFAULT_STEP,
+def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step=DEFAULT_STEP,
                ground_only=False, booking=DEFAULT_BOOKING):
     """Trace rays through several travel-time fields at once (vectorised over all rays).
 
     Parameters
     ----------
-    gx, gz : ndarray (n_fields, ny, nx)
-        Time gradients from :func:`time_gradient`, s/m.
+    grad : complex ndarray (n_fields, ny, nx)
+        Time gradients dT/dx + i dT/dz from :func:`time_gradient`, s/m (one complex
+        array halves the gathers per step; single precision is plenty for a ray
+        direction).
     sources : ndarray (n_fields, 2)
         Field origins (x, z), m.
     radii : ndarray (n_fields,)
@@ -173,8 +175,7 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
     terrain = mesh.terrain
     x_lo, x_hi = mesh.x0, mesh.x1
     z_lo = mesh.z_bottom
-    # one complex array (dT/dx + i dT/dz) halves the gathers per step
-    flat_g = (np.asarray(gx, float) + 1j * np.asarray(gz, float)).reshape(-1)
+    flat_g = np.asarray(grad).reshape(-1)
     field_offset = ny * nx
     dist0 = np.hypot(pos[:, 0] - src[:, 0], pos[:, 1] - src[:, 1])
     # a ray is rarely more than about twice as long as the straight line (common practice)
@@ -236,27 +237,36 @@ def trace_many(mesh, gx, gz, sources, radii, starts, which, keep_paths=False, st
         if keep_paths:
             for r, q in zip(ids, new):
                 paths[r].append(q)
-    # steps: book each in pieces no longer than a node spacing, at their midpoints, in
-    # path order ray by ray (so that consecutive pieces in one cell merge cheaply)
-    rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)
-    order = np.argsort(rows_s, kind="stable")
-    rows_s = rows_s[order]
-    a = np.concatenate(seg_from)[order] if seg_from else np.zeros((0, 2))
-    b = np.concatenate(seg_to)[order] if seg_to else np.zeros((0, 2))
-    sub = max(int(np.ceil(step - 1e-9)), 1)
-    frac = (np.arange(sub) + 0.5) / sub
-    step_mids = (a[:, None, :] + frac[None, :, None] * (b - a)[:, None, :]).reshape(-1, 2)
-    step_len = np.repeat(np.hypot(b[:, 0] - a[:, 0], b[:, 1] - a[:, 1]) / sub, sub)
-    rows = np.concatenate([np.repeat(rows_s, sub)] + straight_ray)
-    mids = np.concatenate([step_mids] + straight_mid)
-    lens = np.concatenate([step_len] + straight_len)
     if ground_only:
         columns = np.full(mesh.ground.size, -1)
         columns[mesh.ground.ravel()] = np.arange(int(mesh.ground.sum()))
     else:
         columns = np.arange(mesh.ground.size)
-    matrix = _book_cells(mesh, rows, mids, lens, n, booking, columns)
-    length = np.bincount(rows, weights=lens, minlength=n)
+    booker = _CellBooking(mesh, booking, columns)
+    # steps: book each in pieces no longer than a node spacing, at their midpoints, in
+    # path order ray by ray (so that consecutive pieces in one cell merge cheaply), a
+    # block of steps at a time (no piece-sized arrays for the whole chunk)
+    rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)
+    order = np.argsort(rows_s, kind="stable")
+    a = np.concatenate(seg_from) if seg_from else np.zeros((0, 2))
+    b = np.concatenate(seg_to) if seg_to else np.zeros((0, 2))
+    del seg_from, seg_to
+    sub = max(int(np.ceil(step - 1e-9)), 1)
+    frac = (np.arange(sub) + 0.5) / sub
+    length = np.zeros(n)
+    block = max(_BLOCK // sub, 1)
+    for k in range(0, order.size, block):
+        take = order[k:k + block]
+        a_k, b_k, r_k = a[take], b[take], rows_s[take]
+        mids = (a_k[:, None, :] + frac[None, :, None] * (b_k - a_k)[:, None, :]).reshape(-1, 2)
+        lens = np.hypot(b_k[:, 0] - a_k[:, 0], b_k[:, 1] - a_k[:, 1]) / sub
+        booker.add(np.repeat(r_k, sub), mids, np.repeat(lens, sub))
+        length += np.bincount(r_k, weights=lens * sub, minlength=n)
+    if straight_ray:
+        rows, lens = np.concatenate(straight_ray), np.concatenate(straight_len)
+        booker.add(rows, np.concatenate(straight_mid), lens)
+        length += np.bincount(rows, weights=lens, minlength=n)
+    matrix = booker.matrix(n)
     out_paths = [np.array(q) for q in paths] if keep_paths else None
     return Rays(matrix, length, out_paths, unfinished)
 
@@ -294,8 +304,12 @@ def _axis_weights(f, n_cells, r, nearest):
     return c, left, right
 
 
-def _book_cells(mesh, rows, mids, lens, n_rays, booking, columns, block=500_000):
-    """Book ray pieces (midpoints ``mids``, lengths ``lens``, m) to model cells.
+#: Ray pieces booked at a time (bounds the temporary arrays to some tens of MB).
+_BLOCK = 300_000
+
+
+class _CellBooking:
+    """Books ray pieces (midpoints, m; lengths, m) to model cells, block by block.
 
     Equivalent to booking each piece to the forward nodes around its midpoint (the
     four around it with bilinear weights, or the nearest one) and mapping node lengths
@@ -308,71 +322,85 @@ def _book_cells(mesh, rows, mids, lens, n_rays, booking, columns, block=500_000)
 
     ``columns`` maps flattened cell indices to matrix columns (-1: not a column).
     """
-    nz, nx = mesh.shape
-    r = mesh.refine
-    nearest = booking == "nearest"
-    ground = mesh.ground
-    top_ground = np.argmax(ground, axis=0)
-    flat_ground = ground.ravel()
-    # cells whose eight neighbours are ground too: no air share can arise there
-    padded = np.pad(ground, 1, constant_values=True)
-    inner = np.ones_like(ground)
-    for di in range(3):
-        for dj in range(3):
-            inner &= padded[di:di + nz, dj:dj + nx]
-    flat_inner = inner.ravel()
-    n_cols = int(columns.max()) + 1 if columns.size else 0
 
-    def axis(f, n_cells):
-        c, left, right = _axis_weights(f, n_cells, r, nearest)
+    def __init__(self, mesh, booking, columns):
+        self.mesh = mesh
+        self.nearest = booking == "nearest"
+        self.columns = columns
+        ground = mesh.ground
+        nz, nx = mesh.shape
+        self.top_ground = np.argmax(ground, axis=0)
+        self.flat_ground = ground.ravel()
+        # cells whose eight neighbours are ground too: no air share can arise there
+        padded = np.pad(ground, 1, constant_values=True)
+        inner = np.ones_like(ground)
+        for di in range(3):
+            for dj in range(3):
+                inner &= padded[di:di + nz, dj:dj + nx]
+        self.flat_inner = inner.ravel()
+        self.n_cols = int(columns.max()) + 1 if columns.size else 0
+        self.out_r, self.out_c, self.out_w = [], [], []
+
+    def _axis(self, f, n_cells):
+        r = self.mesh.refine
+        c, left, right = _axis_weights(f, n_cells, r, self.nearest)
         if r == 1:
             return c, [(0, 1.0 - left - right), (-1, left), (1, right)]
         # with two or more node intervals per cell at most one neighbour has a share
         return c, [(0, 1.0 - left - right), (np.where(left > 0, -1, 1), left + right)]
 
-    out_r, out_c, out_w = [], [], []
-    for s in range(0, rows.size, block):
-        sl = slice(s, s + block)
-        cx, ax = axis((mids[sl, 0] - mesh.x0) / mesh.h, nx)
-        cz, az = axis((mesh.z_top - mids[sl, 1]) / mesh.h, nz)
-        main = cz * nx + cx
-        cells, weights = [], []
-        for oz, wz in az:
-            for ox, wx in ax:
-                cells.append(main + oz * nx + ox)
-                weights.append(wz * wx)
-        edge = np.flatnonzero(~flat_inner[main])
-        if edge.size:
-            # near the surface: drop the air shares and renormalise over the ground ones
-            sub = [flat_ground[np.clip(c[edge], 0, flat_ground.size - 1)] * w[edge]
-                   for c, w in zip(cells, weights)]
-            total = np.sum(sub, axis=0)
-            lonely = total <= 0
-            sub[0] = np.where(lonely, 1.0, sub[0])
-            first = cells[0].copy()
-            first[edge] = np.where(lonely, top_ground[cx[edge]] * nx + cx[edge], first[edge])
-            cells[0] = first
-            total = np.where(lonely, 1.0, total)
-            for w, w_edge in zip(weights, sub):
-                w[edge] = w_edge / total
-        rr = rows[sl]
-        ll = lens[sl]
-        for cell, w in zip(cells, weights):
-            keep = np.flatnonzero(w > 0)
-            if keep.size == 0:
-                continue
-            ray, col, val = rr[keep], cell[keep], w[keep] * ll[keep]
-            # pieces come ray by ray in path order: add up runs in the same cell here,
-            # which leaves the sparse constructor a fraction of the entries to sort
-            new = np.empty(ray.size, bool)
-            new[0] = True
-            np.not_equal(col[1:], col[:-1], out=new[1:])
-            new[1:] |= ray[1:] != ray[:-1]
-            first = np.flatnonzero(new)
-            out_r.append(ray[first])
-            out_c.append(columns[col[first]])
-            out_w.append(np.add.reduceat(val, first))
-    data = np.concatenate(out_w) if out_w else np.zeros(0)
-    cols = np.concatenate(out_c) if out_c else np.zeros(0, int)
-    ray = np.concatenate(out_r) if out_r else np.zeros(0, int)
-    return sp.csr_matrix((data, (ray, cols)), shape=(n_rays, n_cols))
+    def add(self, rows, mids, lens):
+        """Book pieces given ray by ray in path order (runs in one cell are summed)."""
+        mesh = self.mesh
+        nz, nx = mesh.shape
+        for s in range(0, rows.size, _BLOCK):
+            sl = slice(s, s + _BLOCK)
+            cx, ax = self._axis((mids[sl, 0] - mesh.x0) / mesh.h, nx)
+            cz, az = self._axis((mesh.z_top - mids[sl, 1]) / mesh.h, nz)
+            main = cz * nx + cx
+            cells, weights = [], []
+            for oz, wz in az:
+                for ox, wx in ax:
+                    cells.append(main + oz * nx + ox)
+                    weights.append(wz * wx)
+            edge = np.flatnonzero(~self.flat_inner[main])
+            if edge.size:
+                # near the surface: drop the air shares, renormalise over the ground ones
+                flat_ground = self.flat_ground
+                sub = [flat_ground[np.clip(c[edge], 0, flat_ground.size - 1)] * w[edge]
+                       for c, w in zip(cells, weights)]
+                total = np.sum(sub, axis=0)
+                lonely = total <= 0
+                sub[0] = np.where(lonely, 1.0, sub[0])
+                first = cells[0].copy()
+                first[edge] = np.where(lonely, self.top_ground[cx[edge]] * nx + cx[edge], first[edge])
+                cells[0] = first
+                total = np.where(lonely, 1.0, total)
+                for w, w_edge in zip(weights, sub):
+                    w[edge] = w_edge / total
+            rr = rows[sl]
+            ll = lens[sl]
+            for cell, w in zip(cells, weights):
+                keep = np.flatnonzero(w > 0)
+                if keep.size == 0:
+                    continue
+                ray, col, val = rr[keep], cell[keep], w[keep] * ll[keep]
+                # add up runs of pieces in the same cell here, which leaves the sparse
+                # constructor a fraction of the entries to sort
+                new = np.empty(ray.size, bool)
+                new[0] = True
+                np.not_equal(col[1:], col[:-1], out=new[1:])
+                new[1:] |= ray[1:] != ray[:-1]
+                first = np.flatnonzero(new)
+                self.out_r.append(ray[first])
+                self.out_c.append(self.columns[col[first]])
+                self.out_w.append(np.add.reduceat(val, first))
+
+    def matrix(self, n_rays):
+        """The booked lengths as a CSR matrix (n_rays, n_cols), m."""
+        if not self.out_w:
+            return sp.csr_matrix((n_rays, self.n_cols))
+        data = np.concatenate(self.out_w)
+        cols = np.concatenate(self.out_c)
+        rows = np.concatenate(self.out_r)
+        return sp.csr_matrix((data, (rows, cols)), shape=(n_rays, self.n_cols))
