@@ -7,7 +7,7 @@ damped least-squares problem for the update u of the model parameters m::
 
     minimise  || W (r - J u) ||^2 + lam^2 ( || R (m + u - m0) ||^2 + beta^2 || m + u - m_ref ||^2 )
 
-r = observed - computed times (s), W = diag(1/sigma), J = G dm/ds the Jacobian in the
+r = observed - computed times (s), W = diag(1/sigma), J = G ds/dm the Jacobian in the
 chosen parameter (slowness s, or log-velocity with ds/dlog v = -s), R the stacked first
 differences across cells (horizontal rows weighted by ``smooth_x``, vertical rows by
 ``smooth_z``), m0 the starting model and m_ref the reference model of the damping term
@@ -582,7 +582,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         lam_prev = None
         stalled = 0
         held = 0
-        alpha_prev = 1.0
+        alpha_prev, cut_prev = 1.0, False
         k = 0
         run = None
         while stop is None:
@@ -684,9 +684,11 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                     alpha = float(np.clip(a_min, 0.1 * alpha, 0.7 * alpha))
                 return best
 
-            # after short steps, try twice the last one first (saves a pass when the
-            # problem is strongly non-linear for several iterations)
-            best = line_search(u, min(1.0, 2.0 * alpha_prev))
+            # after a short step, try the same again first (the problem is then
+            # strongly non-linear, often for several iterations), or twice it if it was
+            # taken at the first try: a failed trial costs a whole forward pass
+            first_try = min(1.0, alpha_prev * (1.0 if cut_prev else 2.0))
+            best = line_search(u, first_try)
             if best is None and settings.lambda_cooling < 1:
                 # no step reduced chi2 at this weight (near its regularised optimum):
                 # one more try with a lower weight before giving up
@@ -700,6 +702,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 stop = STOP_NO_STEP
                 break
             m, res, r, chi2_new, alpha = best
+            cut_prev = alpha < 0.9 * first_try
             alpha_prev = alpha
             improvement = (chi2 - chi2_new) / chi2
             chi2 = chi2_new

@@ -11,7 +11,7 @@ Sensitivity. To first order, a slowness perturbation ds changes a time by the in
 of ds along the unperturbed ray (Fermat's principle; Nolet 2008, A Breakdown of Seismic
 Tomography, sec. 2.6). The fast-marching solver sees one slowness per forward node and
 node slowness = P @ cell slowness (``Mesh.cell_to_node``). We therefore share each
-piece of ray (at most one node spacing long) among the four nodes around its midpoint
+piece of ray (at most ``PIECE`` node spacings long) among the four nodes around its midpoint
 with bilinear weights, or give it to the nearest node (``booking``), and map node
 lengths to model cells by P^T (done directly in cell space, :func:`_book_cells`): row
 p of the matrix holds the length (m) of ray p that each model cell's slowness acts on,
@@ -33,7 +33,7 @@ import scipy.sparse as sp
 __all__ = ["Rays", "time_gradient", "trace_rays", "trace_many", "DEFAULT_STEP", "DEFAULT_BOOKING"]
 
 #: Ray step, in forward node spacings; None: one model cell (``mesh.refine`` node
-#: spacings). Each step is booked in pieces of at most one node spacing, so the step
+#: spacings). Each step is booked in pieces of at most ``PIECE`` node spacings, so the step
 #: only sets how closely the ray follows the gradient (one cell: within a quarter of a
 #: cell of the exact arcs in tests/test_rays.py, and within 5 % of finite differences).
 DEFAULT_STEP = None
@@ -43,8 +43,8 @@ DEFAULT_STEP = None
 #: "nearest" node. Against finite differences of the forward solver
 #: (tests/test_rays.py, relative L2 error over all picks): for a 1 % block in the
 #: cells just above a sharp interface, bilinear 4.8 % and nearest 9.6 % with 2 node
-#: intervals per cell, 3.5 % and 2.4 % with 3; elsewhere both within 3 %. Bilinear
-#: sharing costs about twice the booking time of nearest (benchmarks/invert.py).
+#: intervals per cell, 4.0 % and 7.3 % with 3; elsewhere both within 3 %. Bilinear
+#: sharing books about 1.5 times as many entries as nearest.
 DEFAULT_BOOKING = "bilinear"
 
 
@@ -243,7 +243,7 @@ def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step
     else:
         columns = np.arange(mesh.ground.size)
     booker = _CellBooking(mesh, booking, columns)
-    # steps: book each in pieces no longer than a node spacing, at their midpoints, in
+    # steps: book each in pieces no longer than PIECE node spacings, at their midpoints, in
     # path order ray by ray (so that consecutive pieces in one cell merge cheaply), a
     # block of steps at a time (no piece-sized arrays for the whole chunk)
     rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)
@@ -251,7 +251,7 @@ def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step
     a = np.concatenate(seg_from) if seg_from else np.zeros((0, 2))
     b = np.concatenate(seg_to) if seg_to else np.zeros((0, 2))
     del seg_from, seg_to
-    sub = max(int(np.ceil(step - 1e-9)), 1)
+    sub = max(int(np.ceil(step / PIECE - 1e-9)), 1)
     frac = (np.arange(sub) + 0.5) / sub
     length = np.zeros(n)
     block = max(_BLOCK // sub, 1)
@@ -303,6 +303,12 @@ def _axis_weights(f, n_cells, r, nearest):
     right = np.where((j0 + 1 == r * (c + 1)) & (c < n_cells - 1), 0.5 * t, 0.0)
     return c, left, right
 
+
+#: Longest piece of ray booked at one midpoint, node spacings. Against finite
+#: differences (tests/test_rays.py) with bilinear booking and 3 node intervals per cell:
+#: 1 -> worst case 3.5 %, 1.5 -> 4.0 %, 3 (one piece per step) -> 4.0 %, but 4.9 % with
+#: 2 intervals per cell; 1.5 books a third fewer pieces than 1 on the default grid.
+PIECE = 1.5
 
 #: Ray pieces booked at a time (bounds the temporary arrays to some tens of MB).
 _BLOCK = 300_000
