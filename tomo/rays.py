@@ -390,7 +390,10 @@ class _CellBooking:
                 keep = np.flatnonzero(w > 0)
                 if keep.size == 0:
                     continue
-                ray, col, val = rr[keep], cell[keep], w[keep] * ll[keep]
+                if keep.size == w.size:  # the cell holding the piece: always a share
+                    ray, col, val = rr, cell, w * ll
+                else:
+                    ray, col, val = rr[keep], cell[keep], w[keep] * ll[keep]
                 # add up runs of pieces in the same cell here, which leaves the sparse
                 # constructor a fraction of the entries to sort
                 new = np.empty(ray.size, bool)
