@@ -58,7 +58,7 @@ from scipy.sparse.linalg import lsmr, lsqr
 
 from . import __version__
 from .errors import InputError, SolverError, TomoError
-from .forward import DEFAULT_SOURCE_RADIUS, _map, sample_field, solve_field
+from .forward import DEFAULT_SOURCE_RADIUS, _map, node_speed, sample_field, solve_field
 from .rays import DEFAULT_BOOKING, DEFAULT_STEP, time_gradient, trace_many
 from .runfile import RunData, write_run
 
@@ -284,11 +284,11 @@ class PassResult:
 
 def _pass_chunk(chunk):
     """Solve the fields of a chunk of origins and trace their rays; return sparse rows."""
-    mesh, slowness, origins, groups, targets, opts = (_STATE[k] for k in
-                                                       ("mesh", "slowness", "origins", "groups", "targets", "opts"))
+    mesh, slowness, speed, origins, groups, targets, opts = (
+        _STATE[k] for k in ("mesh", "slowness", "speed", "origins", "groups", "targets", "opts"))
     t0 = _time.perf_counter()
     fields_ = [solve_field(mesh, slowness, origins[k, 0], origins[k, 1], order=opts["order"],
-                           source_radius=opts["source_radius"]) for k in chunk]
+                           source_radius=opts["source_radius"], speed=speed) for k in chunk]
     t1 = _time.perf_counter()
     rows = np.concatenate([groups[k] for k in chunk])
     which = np.concatenate([np.full(groups[k].size, n) for n, k in enumerate(chunk)])
@@ -332,7 +332,7 @@ def forward_pass(mesh, cell_slowness, picks, settings=None):
     n_chunks = min(len(origins), max(1, workers * 2)) if workers > 1 else 1
     order = np.argsort([-g.size for g in groups])  # big groups first
     chunks = [sorted(order[k::n_chunks].tolist()) for k in range(n_chunks)]
-    _STATE.update(mesh=mesh, slowness=slowness, origins=origins, groups=groups, targets=targets,
+    _STATE.update(mesh=mesh, slowness=slowness, speed=node_speed(mesh, slowness), origins=origins, groups=groups, targets=targets,
                   opts={"order": settings.order, "source_radius": settings.source_radius,
                         "ray_step": settings.ray_step, "ray_booking": settings.ray_booking})
     try:
