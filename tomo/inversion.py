@@ -624,8 +624,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
             else:
                 quick = replace(settings, solver_iterations=min(30, settings.solver_iterations))
-                lam = lam_prev * settings.lambda_cooling
-                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, quick, None)
+                u, solved_at = None, None
                 if alpha_prev < 0.5 and not held:
                     # the last step had to be cut to less than half: the linearisation
                     # is poor here, so keep lam, or raise it after a cut below a
@@ -635,28 +634,34 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                     # creeping at chi2 1.15 with steps of 0.1; holding it, at target)
                     lam = lam_prev if alpha_prev >= 0.25 else lam_prev / settings.lambda_cooling
                     held = 0
-                elif (predicted < aim and held < 1 and settings.lambda_cooling < 1
-                      and chi2 < HOLD_BELOW * settings.chi2_target):
-                    # near the target, where the linear prediction undershoots the aim:
-                    # hold lam for one iteration so as not to overfit (holding longer
-                    # stalls at the regularised minimum; far above the target a held
-                    # iteration only re-linearises and gains little, measured)
-                    lam = lam_prev
-                    held += 1
                 else:
-                    held = 0
-                    # while the prediction stays well above the aim, lower lam further
-                    # (at most three more short solves): convergence is then set by
-                    # how far the linearisation is trusted, not by the cooling rate
-                    for _ in range(3 if settings.lambda_cooling < 1 else 0):
-                        if predicted <= 1.5 * aim:
-                            break
-                        lam_c = lam * settings.lambda_cooling
-                        u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, quick, u)
-                        if pred_c < aim:
-                            break
-                        lam, u, predicted = lam_c, u_c, pred_c
-                u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
+                    lam = lam_prev * settings.lambda_cooling
+                    # a full solve: kept as the update when lam stays at this value
+                    u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, None)
+                    solved_at = lam
+                    if (predicted < aim and held < 1 and settings.lambda_cooling < 1
+                            and chi2 < HOLD_BELOW * settings.chi2_target):
+                        # near the target, where the linear prediction undershoots the
+                        # aim: hold lam for one iteration so as not to overfit (holding
+                        # longer stalls at the regularised minimum; far above the target
+                        # a held iteration only re-linearises and gains little, measured)
+                        lam = lam_prev
+                        held += 1
+                    else:
+                        held = 0
+                        # while the prediction stays well above the aim, lower lam
+                        # further (at most three more short solves): convergence is then
+                        # set by how far the linearisation is trusted, not by the cooling
+                        for _ in range(3 if settings.lambda_cooling < 1 else 0):
+                            if predicted <= 1.5 * aim:
+                                break
+                            lam_c = lam * settings.lambda_cooling
+                            u_c, pred_c = _solve_predict(A, b, R, m - m0, m - m_ref, lam_c, quick, u)
+                            if pred_c < aim:
+                                break
+                            lam, u, predicted = lam_c, u_c, pred_c
+                if u is None or lam != solved_at:
+                    u, predicted = _solve_predict(A, b, R, m - m0, m - m_ref, lam, settings, u)
             timing["solve_s"] += _time.perf_counter() - t_solve
             def line_search(u, alpha):
                 # line search on the true misfit: full step first; if it fails, the minimum
