@@ -25,8 +25,8 @@ step the line search had to cut below a half (a quarter), as in Levenberg-Marqua
 damping; if no step along the update reduces chi2, the update is solved once more
 with lam lowered by ``lambda_cooling``^2 before the run stops. This is the
 discrepancy principle as used in Occam's inversion (Constable, Parker & Constable
-1987, Geophysics 52, 289-300): stop at the smoothest
-model that fits the picks to their uncertainty, chi2 = mean((r / sigma)^2) = 1.
+1987, Geophysics 52, 289-300): stop at the smoothest model that fits the picks to
+their uncertainty, chi2 = mean((r / sigma)^2) = 1.
 
 Step control: the step along u is accepted only if the true (non-linear) chi2 falls;
 otherwise it is halved (a backtracking line search; Nocedal & Wright 2006, Numerical
@@ -331,8 +331,8 @@ def forward_pass(mesh, cell_slowness, picks, settings=None):
     n_chunks = min(len(origins), max(1, workers * 2)) if workers > 1 else 1
     order = np.argsort([-g.size for g in groups])  # big groups first
     chunks = [sorted(order[k::n_chunks].tolist()) for k in range(n_chunks)]
-    _STATE.update(mesh=mesh, slowness=slowness, speed=node_speed(mesh, slowness), origins=origins, groups=groups, targets=targets,
-                  opts={"order": settings.order, "source_radius": settings.source_radius,
+    _STATE.update(mesh=mesh, slowness=slowness, speed=node_speed(mesh, slowness), origins=origins, groups=groups,
+                  targets=targets, opts={"order": settings.order, "source_radius": settings.source_radius,
                         "ray_step": settings.ray_step, "ray_booking": settings.ray_booking})
     try:
         parts = list(_map(_pass_chunk, chunks, workers))

@@ -11,11 +11,11 @@ Sensitivity. To first order, a slowness perturbation ds changes a time by the in
 of ds along the unperturbed ray (Fermat's principle; Nolet 2008, A Breakdown of Seismic
 Tomography, sec. 2.6). The fast-marching solver sees one slowness per forward node and
 node slowness = P @ cell slowness (``Mesh.cell_to_node``). We therefore share each
-piece of ray (at most ``PIECE`` node spacings long) among the four nodes around its midpoint
-with bilinear weights, or give it to the nearest node (``booking``), and map node
-lengths to model cells by P^T (done directly in cell space, :func:`_book_cells`): row
-p of the matrix holds the length (m) of ray p that each model cell's slowness acts on,
-so
+piece of ray (at most ``PIECE`` node spacings long) among the four nodes around its
+midpoint with bilinear weights, or give it to the nearest node (``booking``), and map
+node lengths to model cells by P^T (done directly in cell space, ``_CellBooking``):
+row p of the matrix holds the length (m) of ray p that each model cell's slowness
+acts on, so
 
     dt_p = sum_c G[p, c] ds_c        (s, with ds in s/m).
 
