@@ -104,9 +104,8 @@ def test_sensitivity_matrix_matches_finite_differences(where, refine):
     # the prediction within 5 % of the finite difference of the forward solver; measured
     # over all picks (relative L2 norm), since a pick whose ray grazes the block edge has
     # a tiny change whose relative error means little. Default (bilinear) booking,
-    # measured 0.9-4.8 % over these six cases; the nearest-node option reaches 9.6 %
-    # (7.3 % with 3 intervals per cell)
-    # for the block above the interface with 2 intervals per cell, hence not the default.
+    # measured 0.5-4.9 % over these six cases (4.9 % for the block above the interface
+    # with 2 intervals per cell); the nearest-node option 0.5-4.3 %.
     error = np.linalg.norm(predicted - fd) / np.linalg.norm(fd)
     assert error <= 0.05
     nearest = trace_rays(mesh, field, RECEIVERS, rz, booking="nearest").matrix @ ds.ravel()

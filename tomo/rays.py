@@ -42,15 +42,17 @@ DEFAULT_STEP = None
 #: around it (default; matches the solver's interpolation between nodes) or the
 #: "nearest" node. Against finite differences of the forward solver
 #: (tests/test_rays.py, relative L2 error over all picks): for a 1 % block in the
-#: cells just above a sharp interface, bilinear 4.8 % and nearest 9.6 % with 2 node
-#: intervals per cell, 4.0 % and 7.3 % with 3; elsewhere both within 3 %. Bilinear
-#: sharing books about 1.5 times as many entries as nearest. Limitation (measured, not
-#: tested): where a sharp 600/1800 m/s refractor cuts across cells as a staircase
-#: (dipping, or a trough), 0.1 % changes in the 2 m of overburden cells just above it
-#: are over-predicted by 10-25 % with 3 intervals per cell (up to 80 % with 2), and
-#: 5-10 % for the cells astride it, with either booking: the traced ray hugs the
-#: staircase partly on its slow side, where the solver's head wave does not run. The
-#: tomography's smooth models are not sharp like that.
+#: cells just above a sharp interface, bilinear 4.9 % and nearest 4.3 % with 2 node
+#: intervals per cell, 4.0 % and 2.6 % with 3; elsewhere both within 2 %. Bilinear is
+#: the default for the inversion it feeds: over the 12 recovery runs of
+#: tests/test_inversion.py (seeds 1-6) all converge with it, one stalls at chi2 1.23
+#: with nearest, and its worst trough column is 11.4 % against 13.6 %. Limitation
+#: (measured, not tested): where a sharp 600/1800 m/s refractor cuts across cells as a
+#: staircase (dipping, or a trough), 0.1 % changes in the 2 m of overburden cells just
+#: above it are over-predicted by 10-25 % with 3 intervals per cell (up to 80 % with
+#: 2), and 5-10 % for the cells astride it, with either booking: the traced ray hugs
+#: the staircase partly on its slow side, where the solver's head wave does not run.
+#: The tomography's smooth models are not sharp like that.
 DEFAULT_BOOKING = "bilinear"
 
 
@@ -310,14 +312,14 @@ def _axis_weights(f, n_cells, r, nearest):
     return c, left, right
 
 
-#: Longest piece of ray booked at one midpoint, node spacings. Against finite
-#: differences (tests/test_rays.py) with bilinear booking and 3 node intervals per cell:
-#: 1 -> worst case 3.5 %, 1.5 -> 4.0 %, 3 (one piece per step) -> 4.0 %, but 4.9 % with
-#: 2 intervals per cell. One piece per step traces about 40 % faster but, the
-#: linearisation being coarser, more line-search cuts follow: one of the 12 recovery
-#: runs of tests/test_inversion.py over seeds 1-6 stalled at chi2 1.27. 1.5 books a
-#: third fewer pieces than 1 on the default grid.
-PIECE = 1.5
+#: Longest piece of ray booked at one midpoint, node spacings: 3, so that with the
+#: default step (one model cell) and grid (3 node intervals per cell) each step is one
+#: piece. Against finite differences (tests/test_rays.py, bilinear booking) the worst
+#: case is 4.0 % with 3 intervals per cell and 4.9 % with 2, against 3.5 % and 4.8 %
+#: with pieces of at most one node spacing, and the tracing is about 40 % faster than
+#: with pieces of 1.5 spacings. All 12 recovery runs of tests/test_inversion.py over
+#: seeds 1-6 converge with it (chi2 0.93-1.10).
+PIECE = 3.0
 
 #: Ray pieces booked at a time (bounds the temporary arrays to some tens of MB).
 _BLOCK = 300_000
