@@ -59,6 +59,17 @@ def test_default_layered_start(pick_file, tmp_path, capsys):
     assert run.settings["start"] == "layered" and run.layered is not None
 
 
+def test_unconverged_layered_run_suggests_the_gradient_start(pick_file, tmp_path, capsys):
+    picks, mesh = pick_file
+    out = tmp_path / "run.h5"
+    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1",
+                   "--max-iterations", "1", "--lambda-cooling", "1"])
+    err = capsys.readouterr().err
+    assert status == 0, err
+    assert not read_run(out).converged
+    assert "not fitted to their uncertainty" in err and "--start gradient" in err
+
+
 def test_missing_pick_file_is_one_line(tmp_path, capsys):
     status = main(["invert", str(tmp_path / "nope.csv"), "--out", str(tmp_path / "run.h5")])
     err = capsys.readouterr().err.strip()

@@ -86,4 +86,9 @@ def run(args):
     if not result.converged:
         note("the picks are not fitted to their uncertainty (chi2 above target): "
              "see the residuals before using the section")
+        if result.settings.get("start") == "layered":
+            # a wrong layer in the start (e.g. curved branches of an undulating
+            # refractor read as extra layers) is kept unless the picks push it out
+            note("the layered starting model stays where the picks do not demand a change; "
+                 "compare a run with --start gradient")
     return 0
