@@ -109,7 +109,7 @@ def test_sensitivity_matrix_matches_finite_differences(where, refine):
     error = np.linalg.norm(predicted - fd) / np.linalg.norm(fd)
     assert error <= 0.05
     nearest = trace_rays(mesh, field, RECEIVERS, rz, booking="nearest").matrix @ ds.ravel()
-    assert np.linalg.norm(nearest - fd) <= 0.10 * np.linalg.norm(fd)
+    assert np.linalg.norm(nearest - fd) <= 0.05 * np.linalg.norm(fd)
 
 
 def test_sensitivity_with_the_inversion_grid():
