@@ -163,3 +163,27 @@ def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
     expected = nodes @ mesh.cell_to_node.toarray()
     np.testing.assert_allclose(got, expected, atol=1e-12)
     np.testing.assert_allclose(got.sum(axis=1), np.bincount(rows, lens, minlength=7))
+
+
+@pytest.mark.parametrize("refine", [1, 2, 3])
+def test_cell_booking_over_terrain_keeps_length_in_the_ground(refine):
+    # Pieces anywhere in the ground under uneven terrain, the surface skin included:
+    # every metre is booked (row sums = lengths) and only to ground cells.
+    from tomo.rays import _CellBooking
+    from tomo.survey import Terrain
+
+    terrain = Terrain(np.array([-5.0, 4.0, 9.0, 15.0, 25.0]), np.array([0.0, 2.5, -1.0, 1.5, 0.5]))
+    mesh = build_mesh(0.0, 20.0, terrain, CELL, 6.0, refine=refine, padding=1.0)
+    rng = np.random.default_rng(8)
+    n = 3000
+    x = rng.uniform(mesh.x0, mesh.x1, n)
+    top = terrain.elevation(x, extrapolate=True)
+    z = top - rng.uniform(0.0, 1.5, n) ** 2  # crowded towards the surface
+    z = np.maximum(z, mesh.z_bottom)
+    rows = np.sort(rng.integers(0, 11, n))
+    lens = rng.uniform(0.1, 1.0, n)
+    booked = _CellBooking(mesh, "bilinear", np.arange(mesh.ground.size))
+    booked.add(rows, np.column_stack([x, z]), lens)
+    got = booked.matrix(11).toarray()
+    np.testing.assert_allclose(got.sum(axis=1), np.bincount(rows, lens, minlength=11))
+    assert np.all(got >= 0) and np.all(got[:, ~mesh.ground.ravel()] == 0)
