@@ -48,11 +48,12 @@ DEFAULT_STEP = None
 #: tests/test_inversion.py (seeds 1-6) all converge with it, one stalls at chi2 1.23
 #: with nearest, and its worst trough column is 11.4 % against 13.6 %. Limitation
 #: (measured, not tested): where a sharp 600/1800 m/s refractor cuts across cells as a
-#: staircase (dipping, or a trough), 0.1 % changes in the 2 m of overburden cells just
-#: above it are over-predicted by 10-25 % with 3 intervals per cell (up to 80 % with
-#: 2), and 5-10 % for the cells astride it, with either booking: the traced ray hugs
-#: the staircase partly on its slow side, where the solver's head wave does not run.
-#: The tomography's smooth models are not sharp like that.
+#: staircase (dipping, a trough, or parallel to uneven ground), 0.1 % changes in the
+#: 2 m of overburden cells just above it are over-predicted by 10-40 % with 3 intervals
+#: per cell (10-20 % with 4, up to 85 % with 2), by 5-10 % in the cells astride it and
+#: 2-8 % below it, with either booking: the traced ray hugs the staircase partly on its
+#: slow side, where the solver's head wave does not run. The tomography's smooth
+#: models are not sharp like that.
 DEFAULT_BOOKING = "bilinear"
 
 
