@@ -71,8 +71,8 @@ MIN_PICKS = 20
 MAX_CELLS_PER_PICK = 100.0
 
 #: lam is held for an iteration only while chi2 is below this many times the target:
-#: further up, holding cost iterations for little gain (benchmarks/invert.py line (b)
-#: from the gradient start: chi2 1.14 after 16 iterations with, 1.18 after 19 without)
+#: further up, holding cost iterations for little gain (benchmarks/invert.py line (b):
+#: at target in 18 iterations with this limit, in 20 without)
 HOLD_BELOW = 3.0
 
 STOP_TARGET = "chi2 at target"
