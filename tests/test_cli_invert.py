@@ -59,6 +59,27 @@ def test_default_layered_start(pick_file, tmp_path, capsys):
     assert run.settings["start"] == "layered" and run.layered is not None
 
 
+def test_layered_start_with_a_fixed_number_of_branches(pick_file, tmp_path, capsys):
+    picks, mesh = pick_file
+    out = tmp_path / "run.h5"
+    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1",
+                   "--branches", "2", "--max-iterations", "1"])
+    assert status == 0, capsys.readouterr().err
+    run = read_run(out)
+    assert run.settings["layered_branches"] == 2 and len(run.layered["layers"]) == 2
+
+
+@pytest.mark.parametrize("extra, message", [(["--branches", "9"], "expected 1 to"),
+                                            (["--branches", "2", "--start", "gradient"], "layered start only")])
+def test_bad_branches_are_named(pick_file, tmp_path, capsys, extra, message):
+    picks, mesh = pick_file
+    out = tmp_path / "run.h5"
+    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1"] + extra)
+    err = capsys.readouterr().err
+    assert status != 0 and message in err and "Traceback" not in err
+    assert not out.exists()
+
+
 def test_unconverged_layered_run_suggests_the_gradient_start(pick_file, tmp_path, capsys):
     picks, mesh = pick_file
     out = tmp_path / "run.h5"

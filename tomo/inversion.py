@@ -795,7 +795,7 @@ def _solve(A, b, R, rough, dev, lam, settings, x0=None):
 
 
 def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered", out_path="run.h5",
-                  progress=None, **settings):
+                  progress=None, branches=None, **settings):
     """Read the files, build the mesh and starting model, invert, write the run file.
 
     Parameters
@@ -812,6 +812,9 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         Run file, rewritten after every finished iteration.
     progress : callable, optional
         See :func:`invert`.
+    branches : int, optional
+        Travel-time branches on every side for the layered start
+        (``tomo.starting.layered_start``; default: chosen by the BIC).
     **settings
         Fields of :class:`InversionSettings`.
 
@@ -839,10 +842,17 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
     layered = None
     if start not in ("layered", "gradient"):
         raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
+    if branches is not None:
+        from .branches import MAX_BRANCHES
+
+        if start != "layered":
+            raise InputError("branches apply to the layered start only", field="branches")
+        if not 1 <= int(branches) <= MAX_BRANCHES:
+            raise InputError(f"branches = {branches}: expected 1 to {MAX_BRANCHES}", field="branches")
     start_used = start
     if start == "layered":
         try:
-            velocity, layered = layered_start(picks, mesh, terrain)
+            velocity, layered = layered_start(picks, mesh, terrain, n_branches=branches)
         except TomoError as exc:
             # a line the layered methods cannot read still gets a tomogram, from the
             # gradient start, with a note saying so
@@ -852,7 +862,8 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         velocity, info = gradient_start(picks, mesh, return_fit=True)
         notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
                      f"fitted to the first arrivals")
-    extra = {"start": start_used, "start_requested": start, "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
+    extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
+             "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
              "terrain_file": None if terrain_path is None else str(terrain_path),
              "mesh_file": None if mesh_path is None else str(mesh_path)}
     return invert(picks, mesh, velocity, opts, progress=progress, out_path=out_path, layered=layered,

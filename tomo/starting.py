@@ -93,16 +93,18 @@ def gradient_start(picks, mesh, return_fit=False):
     return (v, fit) if return_fit else v
 
 
-def layered_start(picks, mesh, terrain=None):
+def layered_start(picks, mesh, terrain=None, n_branches=None):
     """Starting model from the layered interpretation, m/s on the mesh (NaN in air).
 
-    Calls ``tomo.layered.interpret_line(picks, terrain)`` and
+    Calls ``tomo.layered.interpret_line(picks, terrain, n_branches=n_branches)`` and
     ``tomo.layered.starting_model(result, mesh)``. Returns the velocity array and the
-    interpretation as a dict (stored in the run file).
+    interpretation as a dict (stored in the run file). ``n_branches`` fixes the number
+    of travel-time branches on every side (default: chosen by the BIC, which reads the
+    curved branches of a strongly undulating refractor as extra layers).
     """
     from . import layered
 
-    result = layered.interpret_line(picks, terrain=terrain)
+    result = layered.interpret_line(picks, terrain=terrain, n_branches=n_branches)
     v = np.asarray(layered.starting_model(result, mesh), float)
     v = np.where(mesh.ground, v, np.nan)
     if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):

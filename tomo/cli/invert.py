@@ -28,6 +28,9 @@ def register(sub):
     p.add_argument("--start", choices=["layered", "gradient"], default="layered",
                    help="starting model: the layered interpretation (default) or a 1-D "
                         "velocity-depth gradient fitted to the picks")
+    p.add_argument("--branches", type=int, metavar="N",
+                   help="travel-time branches on every side for the layered start, as in "
+                        "'tomo layers --branches' (default: chosen by the BIC)")
     p.add_argument("--out", default="run.h5", metavar="RUN.h5", help="run file to write (default run.h5)")
     g = p.add_argument_group("inversion settings (defaults suit a typical line)")
     g.add_argument("--max-iterations", metavar="N", type=int, default=_D.max_iterations, help=f"most iterations (default {_D.max_iterations})")
@@ -73,7 +76,7 @@ def run(args):
     )
     try:
         result = run_inversion(args.picks, terrain_path=args.terrain, mesh_path=args.mesh, start=args.start,
-                               out_path=args.out, progress=_print_progress, **settings)
+                               out_path=args.out, progress=_print_progress, branches=args.branches, **settings)
     except InversionInterrupted as exc:
         print(f"tomo invert: {exc.message}", file=sys.stderr)
         return 130
@@ -90,5 +93,6 @@ def run(args):
             # a wrong layer in the start (e.g. curved branches of an undulating
             # refractor read as extra layers) is kept unless the picks push it out
             note("the layered starting model stays where the picks do not demand a change; "
-                 "compare a run with --start gradient")
+                 "check its layers ('tomo layers', and --branches N to fix their number) "
+                 "and compare a run with --start gradient")
     return 0
