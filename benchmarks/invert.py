@@ -76,6 +76,8 @@ def main(argv=None):
     parser.add_argument("--max-reduction", type=float, default=None)
     parser.add_argument("--start", choices=("layered", "gradient"), default=None,
                         help="starting model (default: per case, see START)")
+    parser.add_argument("--branches", type=int, default=None,
+                        help="travel-time branches per side for the layered start")
     parser.add_argument("--booking", choices=("nearest", "bilinear"), default=None,
                         help="ray-length booking (default: the library's)")
     args = parser.parse_args(argv)
@@ -86,7 +88,7 @@ def main(argv=None):
         try:
             if (args.start or START[case]) == "gradient":
                 raise ValueError("chosen for this case")
-            start, _ = layered_start(picks, mesh)
+            start, _ = layered_start(picks, mesh, n_branches=args.branches)
             kind = "layered"
         except Exception as exc:  # the layered stage may refuse a line; fall back
             print(f"  gradient start ({exc})", file=sys.stderr)
