@@ -99,7 +99,7 @@ def check_recovery(run, mesh, true_depth, v1, v2, settings, v1_above=None):
     # Issue 4 asks for within 10 % where coverage is good. Measured with noise seeds 1-6
     # on both lines (default settings: stop at chi2 <= 1.1, smooth_x 0.5, bilinear ray
     # booking; good columns x = 2.5-43.5 m on the trough line, 1.5-40.5 m on the
-    # weathered one): median error 6.4 % (trough) and 6.7 % (weathered zone), 80-100 %
+    # weathered one): median error 6.3 % (trough) and 6.7 % (weathered zone), 80-100 %
     # of the good columns within 10 %, worst column 7.8-14.2 % (at most 1.2 m, about a
     # cell: on the flat shoulders toward the line ends and at the bottom of the trough,
     # where smoothing rounds the surface; the weathered zone's contour sits shallow

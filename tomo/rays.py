@@ -46,7 +46,7 @@ DEFAULT_STEP = None
 #: intervals per cell, 4.0 % and 2.6 % with 3; elsewhere both within 2 %. Bilinear is
 #: the default for the inversion it feeds: over the 12 recovery runs of
 #: tests/test_inversion.py (seeds 1-6) all converge with it, one stalls at chi2 1.23
-#: with nearest, and its worst trough column is 11.4 % against 13.6 %. Limitation
+#: with nearest, and its worst trough column is 11.0 % against 13.6 %. Limitation
 #: (measured, not tested): where a sharp 600/1800 m/s refractor cuts across cells as a
 #: staircase (dipping, a trough, or parallel to uneven ground), 0.1 % changes in the
 #: 2 m of overburden cells just above it are over-predicted by 10-40 % with 3 intervals
