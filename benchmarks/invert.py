@@ -23,10 +23,12 @@ from dataclasses import replace
 
 import numpy as np
 
+from tomo.errors import TomoError
 from tomo.forward import travel_times
 from tomo.inversion import InversionSettings, default_mesh_spec, invert
 from tomo.mesh import MeshSpec, build_mesh, mesh_for_picks
 from tomo.model import Layer, Model
+from tomo.rays import BOOKINGS
 from tomo.starting import gradient_start, layered_start
 from tomo.survey import Picks, flat_terrain
 
@@ -78,21 +80,22 @@ def main(argv=None):
                         help="starting model (default: per case, see START)")
     parser.add_argument("--branches", type=int, default=None,
                         help="travel-time branches per side for the layered start")
-    parser.add_argument("--booking", choices=("nearest", "bilinear"), default=None,
+    parser.add_argument("--booking", choices=BOOKINGS, default=None,
                         help="ray-length booking (default: the library's)")
     args = parser.parse_args(argv)
     rows = []
     for case in args.cases:
         picks, mesh = make_line(case)
         t_start = time.perf_counter()
-        try:
-            if (args.start or START[case]) == "gradient":
-                raise ValueError("chosen for this case")
-            start, _ = layered_start(picks, mesh, n_branches=args.branches)
-            kind = "layered"
-        except Exception as exc:  # the layered stage may refuse a line; fall back
-            print(f"  gradient start ({exc})", file=sys.stderr)
-            start, kind = gradient_start(picks, mesh), "gradient"
+        kind = args.start or START[case]
+        if kind == "layered":
+            try:
+                start, _ = layered_start(picks, mesh, n_branches=args.branches)
+            except TomoError as exc:  # the layered stage may refuse a line; fall back
+                print(f"  layered start failed ({exc}); gradient start", file=sys.stderr)
+                kind = "gradient"
+        if kind == "gradient":
+            start = gradient_start(picks, mesh)
         t_start = time.perf_counter() - t_start
         lines = []
         settings = InversionSettings(workers=args.workers, max_iterations=args.max_iterations)

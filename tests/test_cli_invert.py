@@ -69,7 +69,7 @@ def test_layered_start_with_a_fixed_number_of_branches(pick_file, tmp_path, caps
     assert run.settings["layered_branches"] == 2 and len(run.layered["layers"]) == 2
 
 
-@pytest.mark.parametrize("extra, message", [(["--branches", "9"], "expected 1 to"),
+@pytest.mark.parametrize("extra, message", [(["--branches", "9"], "must be 1 to"),
                                             (["--branches", "2", "--start", "gradient"], "layered start only")])
 def test_bad_branches_are_named(pick_file, tmp_path, capsys, extra, message):
     picks, mesh = pick_file

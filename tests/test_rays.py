@@ -135,7 +135,9 @@ def test_sensitivity_with_the_inversion_grid():
 def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
     # The booking works per axis in cell space; it must equal booking to the forward
     # nodes (bilinear weights or the nearest node) followed by P^T, P = cell_to_node
-    # (the definition in tomo/rays.py), for points below the surface cells.
+    # (the definition in tomo/rays.py), for points below the surface cells. Reference:
+    # a dense node-by-node construction here (bilinear weights as in Press et al. 2007,
+    # Numerical Recipes, 3rd ed., sec. 3.6), no shortcut shared with the code tested.
     from tomo.rays import _CellBooking
 
     mesh = build_mesh(0.0, 20.0, flat_terrain(-5.0, 25.0), CELL, 8.0, refine=refine, padding=1.0)
@@ -168,7 +170,8 @@ def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
 @pytest.mark.parametrize("refine", [1, 2, 3])
 def test_cell_booking_over_terrain_keeps_length_in_the_ground(refine):
     # Pieces anywhere in the ground under uneven terrain, the surface skin included:
-    # every metre is booked (row sums = lengths) and only to ground cells.
+    # every metre is booked (row sums = lengths) and only to ground cells (conservation
+    # of path length; common practice, no outside source).
     from tomo.rays import _CellBooking
     from tomo.survey import Terrain
 

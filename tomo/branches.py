@@ -471,6 +471,14 @@ def _distinct(b1, b2, z):
     return (b1.slowness_s_m - b2.slowness_s_m) > z * se
 
 
+def check_branch_count(value, name="branches"):
+    """Raise InputError naming ``name`` unless ``value`` is a branch count 1 to MAX_BRANCHES."""
+    from .errors import InputError
+
+    if not 1 <= int(value) <= MAX_BRANCHES:
+        raise InputError(f"{name} must be 1 to {MAX_BRANCHES}, got {value}", field=name.lstrip("-"))
+
+
 def fit_side(problem, n_branches=None, breaks_m=None, max_branches=MAX_BRANCHES,
              through_origin=True, min_contrast=0.02, slope_z=3.0, refine=True):
     """Fit the branches of one shot side.

@@ -108,13 +108,13 @@ def station_spacing(picks):
     return spacing if spacing > 0 else 1.0
 
 
-def auto_mesh_spec(station_x, max_offset, spec=None, spacing=None):
-    """Fill the unset fields of ``spec`` from the survey.
+def auto_mesh_spec(spacing, max_offset, spec=None):
+    """Fill the unset fields of ``spec`` from the survey's station ``spacing`` (m; see
+    :func:`station_spacing`) and longest offset (m).
 
     Defaults (common practice, rules of thumb):
 
-    - cell = a quarter of the median station spacing (``spacing``, else from
-      ``station_x``), rounded down to 1-2-5;
+    - cell = a quarter of the station spacing, rounded down to 1-2-5;
     - depth = a third of the longest offset below the lowest ground (a refraction
       survey rarely sees deeper than a quarter to a third of its longest offset);
     - padding = two station spacings beyond the outermost stations;
@@ -123,10 +123,7 @@ def auto_mesh_spec(station_x, max_offset, spec=None, spacing=None):
       see tests/test_forward.py and benchmarks/forward.py).
     """
     spec = spec or MeshSpec()
-    if spacing is None:
-        xs = np.unique(np.round(np.asarray(station_x, float), 4))
-        spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
-    if spacing <= 0:
+    if not spacing > 0:
         spacing = 1.0
     cell = spec.cell_m or _nice(spacing / 4.0)
     depth = spec.depth_m or max(max_offset / 3.0, 10 * cell)
@@ -337,7 +334,7 @@ def mesh_for_picks(picks, terrain=None, spec=None):
     """
     xs = np.concatenate([picks.source_x, picks.receiver_x])
     max_offset = float(np.max(np.abs(picks.offset))) if len(picks) else 10.0
-    spec = auto_mesh_spec(xs, max_offset, spec, spacing=station_spacing(picks))
+    spec = auto_mesh_spec(station_spacing(picks), max_offset, spec)
     if terrain is None:
         pad = spec.padding_m + spec.cell_m
         terrain = flat_terrain(xs.min() - pad - spec.cell_m, xs.max() + pad + spec.cell_m, 0.0)

@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-__all__ = ["Rays", "time_gradient", "trace_rays", "trace_many", "DEFAULT_STEP", "DEFAULT_BOOKING"]
+__all__ = ["Rays", "time_gradient", "trace_rays", "trace_many", "DEFAULT_STEP", "DEFAULT_BOOKING", "BOOKINGS"]
 
 #: Ray step, in forward node spacings; None: one model cell (``mesh.refine`` node
 #: spacings). Each step is booked in pieces of at most ``PIECE`` node spacings, so the step
@@ -55,6 +55,8 @@ DEFAULT_STEP = None
 #: slow side, where the solver's head wave does not run. The tomography's smooth
 #: models are not sharp like that.
 DEFAULT_BOOKING = "bilinear"
+#: The booking choices.
+BOOKINGS = ("bilinear", "nearest")
 
 
 @dataclass

@@ -75,13 +75,12 @@ def _side_key(text, option):
 
 def options_from_args(args):
     """Library keyword arguments from the parsed command line."""
-    from ..branches import MAX_BRANCHES
+    from ..branches import check_branch_count
     from ..errors import InputError
 
-    if args.branches is not None and not 1 <= args.branches <= MAX_BRANCHES:
-        raise InputError(f"--branches must be 1 to {MAX_BRANCHES}, got {args.branches}")
-    if not 1 <= args.max_branches <= MAX_BRANCHES:
-        raise InputError(f"--max-branches must be 1 to {MAX_BRANCHES}, got {args.max_branches}")
+    if args.branches is not None:
+        check_branch_count(args.branches, "--branches")
+    check_branch_count(args.max_branches, "--max-branches")
     if not args.sigma_ms > 0:
         raise InputError(f"--sigma-ms must be positive, got {args.sigma_ms:g}")
     if not args.disagree_pct > 0:
@@ -99,8 +98,7 @@ def options_from_args(args):
                 table[key] = int(value)
             except ValueError:
                 raise InputError(f"--side-branches: N must be an integer, got {value!r}") from None
-            if not 1 <= table[key] <= MAX_BRANCHES:
-                raise InputError(f"--side-branches: N must be 1 to {MAX_BRANCHES}, got {value}")
+            check_branch_count(table[key], "--side-branches N")
         n_branches = _DefaultDict(table, args.branches)
     breaks = _floats(args.breaks, "--breaks") if args.breaks else None
     if args.side_breaks:
