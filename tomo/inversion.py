@@ -47,6 +47,7 @@ from __future__ import annotations
 
 import json
 import math
+import mmap
 import time as _time
 from dataclasses import asdict, dataclass, field, fields, replace
 
@@ -61,7 +62,7 @@ from .rays import BOOKINGS, DEFAULT_BOOKING, DEFAULT_STEP, time_gradient, trace_
 from .runfile import RunData, write_run
 
 __all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert", "run_inversion",
-           "forward_pass", "PassResult", "default_mesh_spec", "smoothness_operator", "MIN_PICKS",
+           "forward_pass", "trace_pass", "PassResult", "default_mesh_spec", "smoothness_operator", "MIN_PICKS",
            "MAX_CELLS_PER_PICK"]
 
 #: Fewer picks than this cannot support a tomogram (use the layered interpretation).
@@ -269,47 +270,76 @@ _STATE = {}
 
 @dataclass
 class PassResult:
-    """Computed times (s), the ray matrix (picks x cells, m) and timings of one pass."""
+    """Computed times (s), the ray matrix (picks x cells, m) and timings of one pass.
+
+    ``matrix`` is None while the rays are pending (``forward_pass(..., rays=False)``);
+    ``trace_pass`` traces them from the kept time gradients.
+    """
 
     time_s: np.ndarray
-    matrix: sp.csr_matrix
+    matrix: sp.csr_matrix | None
     forward_s: float
     rays_s: float
     wall_s: float
     fallbacks: list
     unfinished: int
+    pending: dict | None = field(default=None, repr=False)
 
 
-def _pass_chunk(chunk):
-    """Solve the fields of a chunk of origins and trace their rays; return sparse rows."""
-    mesh, slowness, speed, origins, groups, targets, opts = (
-        _STATE[k] for k in ("mesh", "slowness", "speed", "origins", "groups", "targets", "opts"))
+def _field_chunk(chunk):
+    """Solve the fields of a chunk of origins: times at the targets; each time field
+    goes into the pass's field array (shared with the parent) for ``_ray_chunk``."""
+    mesh, slowness, speed, origins, groups, targets, opts, kept = (
+        _STATE[k] for k in ("mesh", "slowness", "speed", "origins", "groups", "targets", "opts", "fields"))
     t0 = _time.perf_counter()
     fields_ = [solve_field(mesh, slowness, origins[k, 0], origins[k, 1], order=opts["order"],
                            source_radius=opts["source_radius"], speed=speed) for k in chunk]
-    t1 = _time.perf_counter()
     rows = np.concatenate([groups[k] for k in chunk])
-    which = np.concatenate([np.full(groups[k].size, n) for n, k in enumerate(chunk)])
-    starts = targets[rows]
     times = np.concatenate([sample_field(mesh, f, targets[groups[k], 0], targets[groups[k], 1])
                             for f, k in zip(fields_, chunk)])
-    ny, nx = mesh.node_shape
-    grad = np.empty((len(fields_), ny, nx), np.complex64)
-    for g, f in zip(grad, fields_):
-        g.real, g.imag = time_gradient(mesh, f.time)
-    rays = trace_many(mesh, grad, np.array([f.source for f in fields_]), np.array([f.radius for f in fields_]),
-                      starts, which, step=opts["ray_step"], ground_only=True,
-                      booking=opts["ray_booking"])
-    t2 = _time.perf_counter()
+    for f, k in zip(fields_, chunk):
+        kept[k] = f.time
+    rays = {"origins": list(chunk), "rows": rows, "starts": targets[rows],
+            "which": np.concatenate([np.full(groups[k].size, n) for n, k in enumerate(chunk)]),
+            "sources": np.array([f.source for f in fields_]), "radii": np.array([f.radius for f in fields_])}
     fallbacks = [f.source for f in fields_ if f.fallback]
-    return rows, times, rays.matrix, t1 - t0, t2 - t1, fallbacks, rays.unfinished
+    return rows, times, rays, _time.perf_counter() - t0, fallbacks
 
 
-def forward_pass(mesh, cell_slowness, picks, settings=None):
+def _shared_array(shape, dtype, shared):
+    """An array that forked workers write into and the parent reads (an anonymous
+    shared memory map), or a plain one when everything runs in this process."""
+    if not shared:
+        return np.empty(shape, dtype)
+    size = int(np.prod(shape)) * np.dtype(dtype).itemsize
+    return np.frombuffer(mmap.mmap(-1, max(size, 1)), dtype, count=int(np.prod(shape))).reshape(shape)
+
+
+def _ray_chunk(index):
+    """Trace the rays of one chunk of a pass from its kept time fields; sparse rows."""
+    mesh, part, opts = _STATE["mesh"], _STATE["pending"]["chunks"][index], _STATE["opts"]
+    t0 = _time.perf_counter()
+    kept = _STATE["pending"]["fields"]
+    grad = np.empty((len(part["origins"]),) + mesh.node_shape, np.complex64)
+    for g, k in zip(grad, part["origins"]):
+        g.real, g.imag = time_gradient(mesh, kept[k])
+    rays = trace_many(mesh, grad, part["sources"], part["radii"], part["starts"], part["which"],
+                      step=opts["ray_step"], ground_only=True, booking=opts["ray_booking"])
+    return part["rows"], rays.matrix, _time.perf_counter() - t0, rays.unfinished
+
+
+def _pass_options(settings):
+    return {"order": settings.order, "source_radius": settings.source_radius,
+            "ray_step": settings.ray_step, "ray_booking": settings.ray_booking}
+
+
+def forward_pass(mesh, cell_slowness, picks, settings=None, rays=True):
     """Computed times and the ray matrix for a cell slowness model (s/m, (nz, nx)).
 
     The matrix has one row per pick and one column per *ground* cell (in row-major
-    order of ``mesh.ground``): path length in m.
+    order of ``mesh.ground``): path length in m. With ``rays=False`` only the times
+    are computed and the time gradients kept, so that a trial model the line search
+    rejects costs no ray tracing; ``trace_pass`` then traces the rays of one it keeps.
 
     Fields are solved from the shots (or from the geophones when there are fewer of
     them and ``settings.reciprocity``), in ``settings.workers`` forked processes.
@@ -330,29 +360,53 @@ def forward_pass(mesh, cell_slowness, picks, settings=None):
     n_chunks = min(len(origins), max(1, workers * 2)) if workers > 1 else 1
     order = np.argsort([-g.size for g in groups])  # big groups first
     chunks = [sorted(order[k::n_chunks].tolist()) for k in range(n_chunks)]
+    kept = _shared_array((len(origins),) + mesh.node_shape, np.float64, workers > 1)
     _STATE.update(mesh=mesh, slowness=slowness, speed=node_speed(mesh, slowness), origins=origins, groups=groups,
-                  targets=targets, opts={"order": settings.order, "source_radius": settings.source_radius,
-                        "ray_step": settings.ray_step, "ray_booking": settings.ray_booking})
+                  targets=targets, opts=_pass_options(settings), fields=kept)
     try:
-        parts = list(_map(_pass_chunk, chunks, workers))
+        parts = list(_map(_field_chunk, chunks, workers))
     finally:
         _STATE.clear()
-    n = len(picks)
-    times = np.empty(n)
-    perm = np.concatenate([p[0] for p in parts])
-    blocks = sp.vstack([p[2] for p in parts]).tocsr()
-    inverse = np.empty(n, int)
-    inverse[perm] = np.arange(n)
-    matrix = blocks[inverse]
+    times = np.empty(len(picks))
     for rows, t, *_ in parts:
         times[rows] = t
-    forward_s = sum(p[3] for p in parts)
-    rays_s = sum(p[4] for p in parts)
-    fallbacks = [fb for p in parts for fb in p[5]]
-    unfinished = sum(p[6] for p in parts)
     if not np.all(np.isfinite(times)):
         raise SolverError("some stations were not reached by the wavefront (isolated by the air mask?)")
-    return PassResult(times, matrix, forward_s, rays_s, _time.perf_counter() - t_start, fallbacks, unfinished)
+    result = PassResult(times, None, sum(p[3] for p in parts), 0.0, _time.perf_counter() - t_start,
+                        [fb for p in parts for fb in p[4]], 0, {"fields": kept, "chunks": [p[2] for p in parts]})
+    if rays:
+        trace_pass(mesh, result, settings)
+    return result
+
+
+def trace_pass(mesh, result, settings=None):
+    """Trace the pending rays of a ``forward_pass(..., rays=False)`` result in place.
+
+    Sets ``result.matrix`` and adds the ray-tracing time to ``rays_s`` and ``wall_s``;
+    returns the seconds (CPU summed over workers, wall) this call took.
+    """
+    if result.pending is None:
+        return 0.0, 0.0
+    settings = settings or InversionSettings()
+    t_start = _time.perf_counter()
+    pending = result.pending
+    workers = max(1, min(int(settings.workers), len(pending["chunks"])))
+    _STATE.update(mesh=mesh, pending=pending, opts=_pass_options(settings))
+    try:
+        parts = list(_map(_ray_chunk, range(len(pending["chunks"])), workers))
+    finally:
+        _STATE.clear()
+    n = len(result.time_s)
+    perm = np.concatenate([p[0] for p in parts])
+    inverse = np.empty(n, int)
+    inverse[perm] = np.arange(n)
+    result.matrix = sp.vstack([p[1] for p in parts]).tocsr()[inverse]
+    result.unfinished = sum(p[3] for p in parts)
+    result.pending = None
+    rays_s, wall_s = sum(p[2] for p in parts), _time.perf_counter() - t_start
+    result.rays_s += rays_s
+    result.wall_s += wall_s
+    return rays_s, wall_s
 
 
 # --- regularisation -----------------------------------------------------------------
@@ -510,9 +564,10 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         v[ground] = _to_velocity(m, par)
         return v
 
-    def evaluate(m):
+    def evaluate(m, rays=False):
+        # the rays of a trial wait until the line search keeps it (trace below)
         v = velocity_grid(m)
-        res = forward_pass(mesh, np.where(ground, 1.0 / v, 0.0), picks, settings)
+        res = forward_pass(mesh, np.where(ground, 1.0 / v, 0.0), picks, settings, rays=rays)
         r = observed - res.time_s
         chi2 = float(np.mean((r * weight) ** 2))
         return res, r, chi2
@@ -526,7 +581,12 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         timing["pass_wall_s"] += res.wall_s
         timing["passes"] += 1
 
-    res, r, chi2 = evaluate(m0)
+    def trace(res):
+        rays_s, wall_s = trace_pass(mesh, res, settings)
+        timing["rays_s"] += rays_s
+        timing["pass_wall_s"] += wall_s
+
+    res, r, chi2 = evaluate(m0, rays=True)
     account(res)
     m = m0.copy()
     history = {"chi2": [chi2], "rms_ms": [_rms_ms(r)], "lambda": [float("nan")], "step": [0.0]}
@@ -709,6 +769,7 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
                 stop = STOP_NO_STEP
                 break
             m, res, r, chi2_new, alpha = best
+            trace(res)
             cut_prev = alpha < 0.9 * first_try
             alpha_prev = alpha
             improvement = (chi2 - chi2_new) / chi2
