@@ -11,7 +11,7 @@ import pytest
 
 from tomo.cli import main
 from tomo.figures.bundle import FIGURES
-from tomo.report import CAUTIONS, pick_qc
+from tomo.report import CAUTIONS, LAYERED_START_NOTE, build_report, pick_qc
 from tomo.runfile import write_run
 
 from _runs import make_run
@@ -77,6 +77,15 @@ def test_report_sections_and_numbers(reports):
     assert "made-up warning for the report test" in text
     assert "max_iterations" in text              # settings
     assert "Depth to the 995 m/s surface" in text  # contour of the layered refractor (510 + 1480) / 2
+
+
+def test_report_says_when_the_tomography_started_from_the_layers(reports):
+    # the agreement of a tomogram with the layered model it started from is partly
+    # inherited; the report says so for a layered start only
+    run, text = reports[True]
+    assert run.settings["start"] == "layered" and LAYERED_START_NOTE in text
+    gradient = replace(run, settings=dict(run.settings, start="gradient"))
+    assert LAYERED_START_NOTE not in build_report(gradient)
 
 
 def test_report_without_layered_result_says_so(reports):

@@ -241,7 +241,11 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
         bx.plot(x, d_no, "o", color=colour, ms=2.8, mfc="none")
         if np.any(np.isfinite(d)):
             lim = max(lim, float(np.nanmax(np.abs(d))))
-    ax.set_title(f"{title} (vertical exaggeration {ve:g}:1)")
+    head = f"{title} (vertical exaggeration {ve:g}:1)"
+    if (run.settings or {}).get("start") == "layered":
+        # the tomogram inherits the layered depths where the picks allow (tomo.report)
+        head += "\ntomography started from this layered model: agreement is not an independent check"
+    ax.set_title(head)
     handles, labels = ax.get_legend_handles_labels()
     lx = fig.add_subplot(gs[1])
     lx.axis("off")
