@@ -25,9 +25,10 @@ def _base_depth(x):
     return np.interp(x, [0.0, 40.0], [3.0, 5.0])
 
 
-def make_run(layered=True, seed=1):
+def make_run(layered=True, seed=1, base_shift_m=0.0):
+    """A run of the small line; ``base_shift_m`` moves the refractor down (m)."""
     terrain = Terrain(np.array([-6.0, 20.0, 46.0]), np.array([50.0, 51.5, 53.0]))
-    layers = (Layer(500.0, 0.0, np.array([[0.0, 3.0], [40.0, 5.0]])), Layer(1500.0, 0.0, None))
+    layers = (Layer(500.0, 0.0, np.array([[0.0, 3.0], [40.0, 5.0]]) + [0.0, base_shift_m]), Layer(1500.0, 0.0, None))
     model = Model(layers, (), terrain)
     mesh = build_mesh(-2.0, 35.0, terrain, cell=1.0, depth=12.0, refine=2, padding=2.0)
     geophones = np.arange(12) * 3.0

@@ -2,15 +2,19 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import matplotlib.colors as mcolors
 import matplotlib.image as mimage
 import numpy as np
 import pytest
 
 from tomo.cli import main
+from tomo.errors import InputError
 from tomo.export import covered, investigation_elevation
 from tomo.figures import compare, fit, section, style
 from tomo.figures.bundle import FIGURES
+from tomo.figures.versus import versus_figure, versus_summary, versus_table
 from tomo.runfile import write_run
 
 from _runs import make_run
@@ -177,3 +181,70 @@ def test_plot_into_unusable_folder(tmp_path, runs, capsys):
     assert len(err.splitlines()) == 1 and "cannot create the output folder" in err
     assert main(["plot", str(path), "--out", str(blocker)]) == 2
     assert "not a folder" in capsys.readouterr().err
+
+
+# --- two runs of one line (tomo.figures.versus, tomo plot --versus) -----------------
+
+@pytest.fixture(scope="module")
+def moved():
+    # the same line with the refractor one cell (1 m) deeper: the rasterised model is the
+    # first one moved down by exactly one row, so its iso-velocity surface is too
+    # (translation invariance of the sampling; exact up to rounding)
+    run, mesh, _ = make_run(layered=True)
+    deeper, _, _ = make_run(layered=False, base_shift_m=mesh.cell)
+    assert mesh.cell == 1.0
+    return run, deeper
+
+
+def test_versus_table_of_a_refractor_moved_one_cell_down(moved):
+    run, deeper = moved
+    table = versus_table(run, deeper)
+    assert table["contour_m_s"] == pytest.approx(0.5 * (510.0 + 1480.0))  # from run's layered result
+    ok = table["constrained"]
+    assert ok.sum() >= 20
+    np.testing.assert_allclose(table["difference_m"][ok], -1.0, atol=1e-9)
+    rx = run.picks["receiver_x"]
+    assert np.all((table["x"][ok] >= rx.min()) & (table["x"][ok] <= rx.max()))
+    line = versus_summary(table, ("a", "b"))
+    assert "995 m/s surface, b minus a: mean -1.00 m, RMS 1.00 m" in line
+
+
+def test_versus_figure_draws_both_surfaces(moved):
+    run, deeper = moved
+    fig = versus_figure(run, deeper, labels=("first.h5", "second.h5"))
+    text = _texts(fig)
+    assert "Distance along line (m)" in text and "Difference (m)" in text and "RMS 1.00 m" in text
+    labels = fig.axes[0].get_legend_handles_labels()[1]
+    assert "995 m/s surface, first.h5" in labels and "995 m/s surface, second.h5" in labels
+    style.plt.close(fig)
+
+
+def test_versus_bad_input(moved):
+    run, deeper = moved
+    without, _, _ = make_run(layered=False)
+    with pytest.raises(InputError, match="give the contour velocity"):
+        versus_table(without, deeper)
+    with pytest.raises(InputError, match="second: .*outside the model's range"):
+        versus_table(run, replace(deeper, velocity=deeper.velocity * 0.1), 995.0, labels=("first", "second"))
+    far = replace(deeper, x=deeper.x + 1000.0)
+    with pytest.raises(InputError, match="share no part of the line"):
+        versus_table(run, far, 995.0)
+
+
+def test_plot_versus_writes_the_comparison_and_says_how_far_apart(tmp_path, moved, capsys):
+    run, deeper = moved
+    a, b = tmp_path / "a.h5", tmp_path / "b.h5"
+    write_run(a, run)
+    write_run(b, deeper)
+    out = tmp_path / "figs"
+    assert main(["plot", str(a), "--out", str(out), "--format", "png", "--versus", str(b)]) == 0
+    assert (out / "versus.png").is_file()
+    said = capsys.readouterr().out
+    assert "b.h5 (layered start) minus a.h5 (layered start): mean -1.00 m" in said
+    # --contour alone, and a contour outside a model: one line, exit 2, nothing written
+    empty = tmp_path / "none"
+    assert main(["plot", str(a), "--out", str(empty), "--contour", "900"]) == 2
+    assert main(["plot", str(a), "--out", str(empty), "--versus", str(b), "--contour", "9000"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 2 and "--versus" in err[0] and "outside the model's range" in err[1]
+    assert not empty.exists()

@@ -70,8 +70,11 @@ def prepare_folder(out_dir):
     return out_dir
 
 
-def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None):
+def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None, extra=()):
     """Save every run figure into ``out_dir`` as ``<name>.<format>``.
+
+    ``extra`` holds more (name, Figure) pairs to save with them (e.g. the comparison
+    with another run, :mod:`tomo.figures.versus`).
 
     The figures are first written into a temporary folder inside ``out_dir`` and moved
     into place only when all of them are done, so a failure leaves no partial set.
@@ -82,7 +85,7 @@ def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None
         The files written.
     """
     out_dir = prepare_folder(out_dir)
-    figures = make_figures(run, skip_note)
+    figures = make_figures(run, skip_note) + [(FigureSpec(name, "", None), fig) for name, fig in extra]
     tmp = Path(tempfile.mkdtemp(prefix=".tomo-plot.", dir=out_dir))
     written = []
     try:

@@ -256,14 +256,21 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
     bx.set_ylabel("Difference (m)")
     bx.set_title("Contour minus refractor elevation (positive: contour above; open circles: contour below "
                  "the depth of investigation)", fontsize=8.5)
-    # The aspect-locked section is narrower, and often shorter, than its slot: put the
-    # legend and the difference panel right under it, at its width.
+    stack_under(fig, ax, lx, bx)
+    return fig
+
+
+def stack_under(fig, ax, legend_ax, panel_ax):
+    """Move a legend axis and a panel right under the section ``ax``, at its width.
+
+    The aspect-locked section is narrower, and often shorter, than its grid slot; left
+    there, the panels below would not line up with its distance axis.
+    """
     fig.canvas.draw()
     top = ax.get_position()
     to_fig = fig.transFigure.inverted()
     section_bottom = ax.get_tightbbox(fig.canvas.get_renderer()).transformed(to_fig).y0
-    legend_h, gap = lx.get_position().height, 0.015
-    lx.set_position([top.x0, section_bottom - gap - legend_h, top.width, legend_h])
-    bx_h = bx.get_position().height
-    bx.set_position([top.x0, section_bottom - gap - legend_h - 0.06 - bx_h, top.width, bx_h])
-    return fig
+    legend_h, gap = legend_ax.get_position().height, 0.015
+    legend_ax.set_position([top.x0, section_bottom - gap - legend_h, top.width, legend_h])
+    panel_h = panel_ax.get_position().height
+    panel_ax.set_position([top.x0, section_bottom - gap - legend_h - 0.06 - panel_h, top.width, panel_h])
