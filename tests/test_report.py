@@ -88,6 +88,26 @@ def test_report_says_when_the_tomography_started_from_the_layers(reports):
     assert LAYERED_START_NOTE not in build_report(gradient)
 
 
+def test_report_versus_a_second_run(tmp_path, capsys):
+    # the second run's refractor lies one cell (1 m) deeper: the comparison says so
+    # (exact; see tests/test_figures.py) and embeds its figure
+    a, b = tmp_path / "a.h5", tmp_path / "b.h5"
+    run, mesh, _ = make_run(layered=True)
+    write_run(a, run)
+    write_run(b, make_run(layered=False, base_shift_m=mesh.cell)[0])
+    out = tmp_path / "report.html"
+    assert main(["report", str(a), "--out", str(out), "--versus", str(b)]) == 0
+    text = out.read_text(encoding="utf-8")
+    assert "Against a second run of these picks: 995 m/s surface, b.h5 (layered start) minus a.h5" in text
+    assert "mean -1.00 m, RMS 1.00 m" in text
+    assert 'id="fig-versus"' in text and len(_images(text)) == len(FIGURES) + 1
+    # a contour outside the second model: one line, exit 2, no report
+    bad = tmp_path / "bad.html"
+    assert main(["report", str(a), "--out", str(bad), "--versus", str(b), "--contour", "4000"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "outside the model's range" in err[0] and not bad.exists()
+
+
 def test_report_without_layered_result_says_so(reports):
     _, text = reports[False]
     assert len(_images(text)) == len(FIGURES) - 1

@@ -56,7 +56,8 @@ LAYERED_START_NOTE = (
     "(tests/test_inversion.py) runs from the layered start fitted the picks as well as runs from the "
     "1-D gradient start, yet their contours stayed 17-30 % of the depth off the true refractor in "
     "places where the gradient-start contours were within 14 %. Run tomo invert --start gradient and "
-    "compare the two tomograms: where they differ, the picks do not decide.")
+    "compare the two tomograms (tomo report RUN.h5 --versus OTHER.h5): where they differ, the picks do "
+    "not decide.")
 
 _CSS = """
 body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; color: #1d2430;
@@ -298,14 +299,18 @@ def _misfit_section(run):
     return "\n".join(parts)
 
 
-def build_report(run, source=None, skip_note=None, figure_pngs=None):
+def build_report(run, source=None, skip_note=None, figure_pngs=None, other=None, labels=None, contour_m_s=None):
     """The report HTML for a run (a str).
 
     ``source`` names the run file in the heading. ``figure_pngs`` (figure name -> PNG
-    bytes, names as in :data:`tomo.figures.bundle.FIGURES`) reuses figures already drawn;
-    otherwise they are drawn here.
+    bytes, names as in :data:`tomo.figures.bundle.FIGURES`, plus ``"versus"``) reuses
+    figures already drawn; otherwise they are drawn here. ``other``, a second run of
+    the same picks (e.g. from the other starting model), adds the comparison of the
+    ``contour_m_s`` surface in both (:mod:`tomo.figures.versus`; ``labels`` name the
+    two runs).
     """
-    from .figures.bundle import FIGURES, make_figures
+    from .figures.bundle import FIGURES, FigureSpec, make_figures
+    from .figures import versus as vs
 
     created = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = "Seismic refraction interpretation"
@@ -314,7 +319,21 @@ def build_report(run, source=None, skip_note=None, figure_pngs=None):
     else:
         figs = [(spec, base64.b64encode(figure_pngs[spec.name]).decode("ascii"))
                 for spec in FIGURES if spec.name in figure_pngs]
-    fig_html = []
+    versus_html = ""
+    if other is not None:
+        labels = tuple(labels or ("this run", "second run"))
+        summary = vs.versus_summary(vs.versus_table(run, other, contour_m_s, labels), labels)
+        if figure_pngs is not None and "versus" in figure_pngs:
+            data = base64.b64encode(figure_pngs["versus"]).decode("ascii")
+        else:
+            fig = vs.versus_figure(run, other, contour_m_s, labels)
+            try:
+                data = _figure_png(fig)
+            finally:
+                vs.style.plt.close(fig)
+        figs.append((FigureSpec("versus", vs.CAPTION, None), data))
+        versus_html = f'<p>Against a second run of these picks: {_esc(summary)}.</p>'
+    fig_html = [versus_html] if versus_html else []
     for number, (spec, data) in enumerate(figs, start=1):
         fig_html.append(f'<figure id="fig-{spec.name}"><img alt="{_esc(spec.caption)}" '
                         f'src="data:image/png;base64,{data}"><figcaption><b>Figure {number}.</b> '
@@ -356,13 +375,15 @@ professional under the local codes.</div>
     return body
 
 
-def write_report(path, run, source=None, skip_note=None, figure_pngs=None):
+def write_report(path, run, source=None, skip_note=None, figure_pngs=None, other=None, labels=None,
+                 contour_m_s=None):
     """Build the report (see :func:`build_report`) and write it atomically to ``path``;
     returns the path."""
     from .export import check_output_path
 
     check_output_path(path)
-    text = build_report(run, source=source, skip_note=skip_note, figure_pngs=figure_pngs)
+    text = build_report(run, source=source, skip_note=skip_note, figure_pngs=figure_pngs, other=other,
+                        labels=labels, contour_m_s=contour_m_s)
     with atomic_open(path, "w", encoding="utf-8") as f:
         f.write(text)
     return Path(path)

@@ -71,3 +71,28 @@ def progress_printer(label):
 def note(message):
     """Print a notice for the user on stderr (stdout stays for results)."""
     print(message, file=sys.stderr, flush=True)
+
+
+def add_versus_options(parser, what):
+    """``--versus OTHER.h5`` and ``--contour V`` for the commands that compare two runs."""
+    parser.add_argument("--versus", metavar="OTHER.h5",
+                        help="another run of the same picks (e.g. from the other starting model): " + what)
+    parser.add_argument("--contour", metavar="V", type=float,
+                        help="velocity of the compared surface, m/s (default: the mean of the layer "
+                             "velocities above and below the deepest refractor of the layered result)")
+
+
+def read_versus(args):
+    """The run files of ``args.run_file`` and ``--versus``: (run, other or None, labels or None)."""
+    from ..errors import InputError
+    from ..figures.versus import run_labels
+    from ..runfile import read_run
+
+    if args.contour is not None and args.versus is None:
+        raise InputError("--contour is the velocity of the surface compared with --versus; give --versus OTHER.h5",
+                         field="--contour")
+    run = read_run(args.run_file)
+    if args.versus is None:
+        return run, None, None
+    other = read_run(args.versus)
+    return run, other, run_labels(args.run_file, run, args.versus, other)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from . import note
+from . import add_versus_options, note, read_versus
 
 
 def register(sub):
@@ -16,38 +16,17 @@ def register(sub):
     p.add_argument("--out", required=True, metavar="DIR", help="folder for the figures (created if needed)")
     p.add_argument("--format", dest="formats", action="append", choices=["png", "pdf", "svg"],
                    help="file format (repeatable; default png and pdf)")
-    p.add_argument("--versus", metavar="OTHER.h5",
-                   help="another run of the same line (e.g. from the other starting model): also draw "
-                        "versus.png, the same iso-velocity surface in both and their difference")
-    p.add_argument("--contour", metavar="V", type=float,
-                   help="velocity of that surface, m/s (default: the mean of the layer velocities above "
-                        "and below the deepest refractor of the layered result)")
+    add_versus_options(p, "also draw versus.png, the same iso-velocity surface in both and their difference")
     p.set_defaults(run=run)
 
 
-def _label(path, run_data):
-    from pathlib import Path
-
-    start = (run_data.settings or {}).get("start")
-    return f"{Path(path).name} ({start} start)" if start else Path(path).name
-
-
 def run(args):
-    from ..errors import InputError
     from ..figures.bundle import plot_run
     from ..figures.versus import versus_figure, versus_summary, versus_table
-    from ..runfile import read_run
 
-    if args.contour is not None and args.versus is None:
-        raise InputError("--contour is the velocity of the surface compared with --versus; give --versus OTHER.h5",
-                         field="--contour")
-    run_data = read_run(args.run_file)
+    run_data, other, labels = read_versus(args)
     extra, summary = [], None
-    if args.versus is not None:
-        other = read_run(args.versus)
-        labels = (_label(args.run_file, run_data), _label(args.versus, other))
-        if labels[0] == labels[1]:
-            labels = (args.run_file, args.versus)
+    if other is not None:
         summary = versus_summary(versus_table(run_data, other, args.contour, labels), labels)
         extra.append(("versus", versus_figure(run_data, other, args.contour, labels)))
     written = plot_run(run_data, args.out, formats=tuple(args.formats or ("png", "pdf")), skip_note=note,

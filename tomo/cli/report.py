@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from . import note
+from . import add_versus_options, note, read_versus
 
 
 def register(sub):
@@ -13,15 +13,16 @@ def register(sub):
     )
     p.add_argument("run_file", metavar="RUN.h5", help="run file written by 'tomo invert'")
     p.add_argument("--out", required=True, metavar="REPORT.html", help="HTML file to write")
+    add_versus_options(p, "add the comparison of one iso-velocity surface in both")
     p.set_defaults(run=run)
 
 
 def run(args):
     from ..report import write_report
-    from ..runfile import read_run
 
-    run_data = read_run(args.run_file)
-    path = write_report(args.out, run_data, source=args.run_file, skip_note=note)
+    run_data, other, labels = read_versus(args)
+    path = write_report(args.out, run_data, source=args.run_file, skip_note=note, other=other, labels=labels,
+                        contour_m_s=args.contour)
     size_kb = path.stat().st_size / 1024
     print(f"wrote the report to {path} ({size_kb:.0f} kB)")
     return 0

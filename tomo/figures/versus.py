@@ -20,9 +20,26 @@ from .section import _edges, colorbar, colour_range, display_cells, draw_base
 from ..errors import InputError
 from ..export import check_contour, contour_surface, covered
 
-__all__ = ["versus_table", "versus_figure", "versus_summary"]
+__all__ = ["versus_table", "versus_figure", "versus_summary", "run_labels", "CAPTION"]
+
+#: Caption of the figure in reports.
+CAPTION = ("The same iso-velocity surface in two tomograms of these picks (solid: this run; dashed: the "
+           "second run), and their difference along the line. Where they part, the picks do not decide "
+           "the surface; the difference is a lower bound on its uncertainty there.")
 
 _COLOURS = (style.PALETTE[4], style.PALETTE[1])  # sky blue, orange (Okabe-Ito)
+
+
+def run_labels(path, run, other_path, other):
+    """Legend names of two runs: the file names with their starting models."""
+    from pathlib import Path
+
+    def one(p, r):
+        start = (r.settings or {}).get("start")
+        return f"{Path(p).name} ({start} start)" if start else Path(p).name
+
+    labels = (one(path, run), one(other_path, other))
+    return labels if labels[0] != labels[1] else (str(path), str(other_path))
 
 
 def _contour_value(run, other, contour_m_s):
