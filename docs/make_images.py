@@ -13,6 +13,7 @@ from pathlib import Path
 from tomo.demo import run_demo
 from tomo.figures import style
 from tomo.figures.bundle import make_figures
+from tomo.figures.versus import run_labels, versus_figure
 from tomo.runfile import read_run
 
 IMAGES = Path(__file__).resolve().parent / "images"
@@ -24,8 +25,11 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         result = run_demo(tmp, progress=lambda line: print(line, file=sys.stderr))
         run = read_run(result.run_file)
-        for spec, fig in make_figures(run):
-            path = IMAGES / f"demo-{spec.name}.png"
+        second_path = result.out_dir / "run-gradient.h5"
+        second = read_run(second_path)
+        versus = versus_figure(run, second, labels=run_labels(result.run_file, run, second_path, second))
+        for name, fig in [(spec.name, fig) for spec, fig in make_figures(run)] + [("versus", versus)]:
+            path = IMAGES / f"demo-{name}.png"
             fig.savefig(path, dpi=DPI, bbox_inches="tight")
             style.plt.close(fig)
             print(f"wrote {path} ({path.stat().st_size // 1024} kB)")

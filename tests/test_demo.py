@@ -35,10 +35,11 @@ def test_demo_writes_report_and_every_file(demo_run, capsys):
     out = demo_run
     for name in ("qc.png", "layers.json", "refractor.csv", "curves.png", "run.h5", "report.html",
                  "velocity.png", "velocity.pdf", "coverage.png", "traveltimes.png", "residuals.png",
-                 "misfit.png"):
+                 "misfit.png", "run-gradient.h5", "versus.png"):
         assert (out / name).is_file(), name
     text = (out / "report.html").read_text(encoding="utf-8")
     assert "licensed professional" in text and text.count("data:image/png;base64,") >= 5
+    assert 'id="fig-versus"' in text and "Against a second run of these picks" in text
 
 
 def test_demo_recovers_the_weathered_zone(demo_run):

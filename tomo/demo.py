@@ -1,10 +1,12 @@
 """The demo: the whole workflow on the invented hillside line in the repository's ``demo/``.
 
-``run_demo(out_dir)`` runs, in order, ``tomo check``, ``tomo layers``, ``tomo invert``,
-the figures of ``tomo plot`` and ``tomo report`` on ``demo/picks.csv`` and
-``demo/terrain.csv``, writing everything into ``out_dir``. The check, layers and invert
-steps go through the command line (:func:`tomo.cli.main`), so the demo prints exactly
-what a user running those commands would see.
+``run_demo(out_dir)`` runs, in order, ``tomo check``, ``tomo layers``, ``tomo invert``
+(from the layered start, then once more from the 1-D gradient start, to show how much
+of the section the picks decide), the figures of ``tomo plot`` (with the two runs
+compared) and ``tomo report`` on ``demo/picks.csv`` and ``demo/terrain.csv``, writing
+everything into ``out_dir``. The check, layers and invert steps go through the command
+line (:func:`tomo.cli.main`), so the demo prints exactly what a user running those
+commands would see.
 """
 
 from __future__ import annotations
@@ -22,6 +24,13 @@ DEMO_FILES = ("picks.csv", "terrain.csv", "site.toml", "layout.csv")
 
 #: Processes for the inversion's forward solves (the machine has 2 cores).
 DEMO_WORKERS = 2
+#: Steps the demo announces.
+STEPS = 6
+
+
+@dataclass(frozen=True)
+class _Named:
+    name: str
 
 
 def demo_dir():
@@ -82,7 +91,7 @@ def _cli(argv, step, log=None, keep_stderr=False):
 
 
 def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
-    """Run check, layers, invert, plot and report on the demo line.
+    """Run check, layers, invert (twice), plot and report on the demo line.
 
     Parameters
     ----------
@@ -97,6 +106,7 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     """
     from .figures import style
     from .figures.bundle import make_figures, prepare_folder
+    from .figures.versus import run_labels, versus_figure, versus_summary, versus_table
     from .report import write_report
     from .runfile import read_run
 
@@ -107,7 +117,7 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     files = []
 
     def step(k, name, text):
-        _say(progress, f"[{k}/5] {name}: {text}")
+        _say(progress, f"[{k}/{STEPS}] {name}: {text}")
         return time.perf_counter()
 
     t0 = step(1, "check", f"pick QC of {picks} (report in {out / 'check.txt'})")
@@ -129,9 +139,21 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     timings["invert"] = time.perf_counter() - t0
     files += [out / "invert.txt", run_path]
 
-    t0 = step(4, "plot", f"figures into {out}")
-    run = read_run(run_path)
-    figures = make_figures(run, skip_note=progress)
+    # a tomogram keeps much of its starting model where the picks allow it: the same
+    # picks from the other start show what they leave open (tomo.figures.versus)
+    second_path = out / "run-gradient.h5"
+    t0 = step(4, "invert", f"the same picks from the 1-D gradient start, for comparison (log in "
+                           f"{out / 'invert-gradient.txt'})")
+    _invert(picks, terrain, second_path, workers, out / "invert-gradient.txt", show_progress=False,
+            start="gradient")
+    timings["gradient run"] = time.perf_counter() - t0
+    files += [out / "invert-gradient.txt", second_path]
+    run, second = read_run(run_path), read_run(second_path)
+    labels = run_labels(run_path, run, second_path, second)
+    _say(progress, "       " + versus_summary(versus_table(run, second, labels=labels), labels))
+
+    t0 = step(5, "plot", f"figures into {out}")
+    figures = make_figures(run, skip_note=progress) + [(_Named("versus"), versus_figure(run, second, labels=labels))]
     pngs = {}
     try:
         for spec, fig in figures:
@@ -145,8 +167,9 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
             style.plt.close(fig)
     timings["plot"] = time.perf_counter() - t0
 
-    t0 = step(5, "report", "one self-contained HTML file")
-    report = write_report(out / "report.html", run, source=str(run_path), figure_pngs=pngs)
+    t0 = step(6, "report", "one self-contained HTML file")
+    report = write_report(out / "report.html", run, source=str(run_path), figure_pngs=pngs, other=second,
+                          labels=labels)
     timings["report"] = time.perf_counter() - t0
     files.append(report)
     return DemoResult(out_dir=out, report=report, run_file=run_path, files=files, timings=timings)
@@ -174,8 +197,8 @@ def _layer_summary(path):
     return "layers: " + ", ".join(parts) + " (velocity assumed to increase with depth)"
 
 
-def _invert(picks, terrain, run_path, workers, log, show_progress=True):
+def _invert(picks, terrain, run_path, workers, log, show_progress=True, start="layered"):
     """The inversion step through ``tomo invert``; its progress lines stay on screen
     when ``show_progress``, else they go to the log with the rest."""
-    _cli(["invert", picks, "--terrain", terrain, "--start", "layered", "--out", str(run_path),
+    _cli(["invert", picks, "--terrain", terrain, "--start", start, "--out", str(run_path),
           "--workers", str(workers)], "invert", log, keep_stderr=show_progress)

@@ -8,9 +8,9 @@ from . import note
 def register(sub):
     p = sub.add_parser(
         "demo", help="run check, layers, invert, plot and report on the built-in demo line",
-        description="Run the whole workflow (pick QC, layered interpretation, tomography, "
-                    "figures, report) on the invented hillside line in demo/, and say where "
-                    "the report is.",
+        description="Run the whole workflow (pick QC, layered interpretation, tomography from "
+                    "the layered and from the gradient start, figures, report) on the invented "
+                    "hillside line in demo/, and say where the report is.",
     )
     p.add_argument("--out", default="tomo-demo", metavar="DIR",
                    help="folder for the outputs (default: ./tomo-demo, created if needed)")
