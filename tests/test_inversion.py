@@ -285,3 +285,23 @@ def test_fields_from_the_geophones_give_the_same_rays():
     ds = 0.01 * s[mesh.ground] * (1.0 + 0.5 * np.sin(mesh.x / 9.0)[None, :].repeat(mesh.nz, 0)[mesh.ground])
     pa, pb = a.matrix @ ds, b.matrix @ ds
     assert np.linalg.norm(pa - pb) <= 0.02 * np.linalg.norm(pb)
+
+
+def test_rays_traced_later_are_the_rays_traced_at_once():
+    # The line search times trial models without rays and traces only the one it keeps
+    # (forward_pass(rays=False), then trace_pass): same times and the same matrix as
+    # one pass with rays, in this process and through the workers' shared fields.
+    from tomo.inversion import forward_pass, trace_pass
+
+    mesh = inversion_mesh()
+    layout = line_picks(TERRAIN, GEOPHONES, SHOTS)
+    s = np.where(mesh.ground, np.where(mesh.depth > 6.0, 1.0 / 1800.0, 1.0 / 600.0), 0.0)
+    at_once = forward_pass(mesh, s, layout, InversionSettings(workers=1))
+    for workers in (1, 2):
+        later = forward_pass(mesh, s, layout, InversionSettings(workers=workers), rays=False)
+        assert later.matrix is None and later.rays_s == 0.0
+        np.testing.assert_array_equal(later.time_s, at_once.time_s)
+        trace_pass(mesh, later, InversionSettings(workers=workers))
+        assert later.pending is None and later.rays_s > 0.0
+        assert abs(later.matrix - at_once.matrix).max() <= 1e-12
+        assert trace_pass(mesh, later) == (0.0, 0.0)  # nothing left to trace

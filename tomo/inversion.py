@@ -273,7 +273,7 @@ class PassResult:
     """Computed times (s), the ray matrix (picks x cells, m) and timings of one pass.
 
     ``matrix`` is None while the rays are pending (``forward_pass(..., rays=False)``);
-    ``trace_pass`` traces them from the kept time gradients.
+    ``trace_pass`` traces them from the kept time fields.
     """
 
     time_s: np.ndarray
@@ -338,8 +338,9 @@ def forward_pass(mesh, cell_slowness, picks, settings=None, rays=True):
 
     The matrix has one row per pick and one column per *ground* cell (in row-major
     order of ``mesh.ground``): path length in m. With ``rays=False`` only the times
-    are computed and the time gradients kept, so that a trial model the line search
-    rejects costs no ray tracing; ``trace_pass`` then traces the rays of one it keeps.
+    are computed and the time fields kept (in memory shared with the workers), so that
+    a trial model the line search rejects costs no ray tracing; ``trace_pass`` then
+    traces the rays of one it keeps.
 
     Fields are solved from the shots (or from the geophones when there are fewer of
     them and ``settings.reciprocity``), in ``settings.workers`` forked processes.
