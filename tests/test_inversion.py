@@ -105,8 +105,13 @@ def check_recovery(run, mesh, true_depth, v1, v2, settings, v1_above=None):
     # where smoothing rounds the surface; the weathered zone's contour sits shallow
     # along much of the line, since its overburden velocity grows to 450-530 m/s at the
     # interface while the contour uses the top 350 m/s). With 1 m cells over 8 m of
-    # cover, 10 % is less than a cell. Asserted so that it holds for any of those
-    # seeds: median within 10 %, no column beyond 15 % (the measured worst plus under 1 %).
+    # cover, 10 % is less than a cell. The picks themselves do not fix the contour that
+    # closely: from the layered start the same picks are fitted as well (chi2 0.91-1.17,
+    # same seeds) with contours up to 30 % (trough) and 27 % (weathered zone) off, and
+    # neither a blocky (IRLS L1) measure of the model roughness nor sharpening
+    # iterations at the target misfit brought the worst column below 12 % (measured).
+    # Asserted so that it holds for any of those seeds: median within 10 %, no column
+    # beyond 15 % (the measured worst plus under 1 %).
     assert np.median(err) <= 0.10, np.round(err, 3)
     assert err.max() <= 0.15, np.round(err, 3)
 

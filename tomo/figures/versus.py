@@ -12,6 +12,8 @@ a lower bound on its uncertainty.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 
 from . import style
@@ -32,8 +34,6 @@ _COLOURS = (style.PALETTE[4], style.PALETTE[1])  # sky blue, orange (Okabe-Ito)
 
 def run_labels(path, run, other_path, other):
     """Legend names of two runs: the file names with their starting models."""
-    from pathlib import Path
-
     def one(p, r):
         start = (r.settings or {}).get("start")
         return f"{Path(p).name} ({start} start)" if start else Path(p).name
