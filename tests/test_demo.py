@@ -39,7 +39,7 @@ def test_demo_writes_report_and_every_file(demo_run, capsys):
         assert (out / name).is_file(), name
     text = (out / "report.html").read_text(encoding="utf-8")
     assert "licensed professional" in text and text.count("data:image/png;base64,") >= 5
-    assert 'id="fig-versus"' in text and "Against a second run of these picks" in text
+    assert 'id="fig-versus"' in text and "Against a second run of these picks (Figure" in text
 
 
 def test_demo_recovers_the_weathered_zone(demo_run):

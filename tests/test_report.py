@@ -98,7 +98,9 @@ def test_report_versus_a_second_run(tmp_path, capsys):
     out = tmp_path / "report.html"
     assert main(["report", str(a), "--out", str(out), "--versus", str(b)]) == 0
     text = out.read_text(encoding="utf-8")
-    assert "Against a second run of these picks: 995 m/s surface, b.h5 (layered start) minus a.h5" in text
+    n = len(FIGURES) + 1
+    assert f"Against a second run of these picks (Figure {n}): 995 m/s surface, b.h5 (layered start) minus a.h5" in text
+    assert text.index("Against a second run") < text.index('id="fig-versus"') < text.index(f"Figure {n}.</b>")
     assert "mean -1.00 m, RMS 1.00 m" in text
     assert 'id="fig-versus"' in text and len(_images(text)) == len(FIGURES) + 1
     # a contour outside the second model: one line, exit 2, no report

@@ -332,9 +332,11 @@ def build_report(run, source=None, skip_note=None, figure_pngs=None, other=None,
             finally:
                 vs.style.plt.close(fig)
         figs.append((FigureSpec("versus", vs.CAPTION, None), data))
-        versus_html = f'<p>Against a second run of these picks: {_esc(summary)}.</p>'
-    fig_html = [versus_html] if versus_html else []
+        versus_html = f'<p>Against a second run of these picks (Figure {len(figs)}): {_esc(summary)}.</p>'
+    fig_html = []
     for number, (spec, data) in enumerate(figs, start=1):
+        if spec.name == "versus":
+            fig_html.append(versus_html)
         fig_html.append(f'<figure id="fig-{spec.name}"><img alt="{_esc(spec.caption)}" '
                         f'src="data:image/png;base64,{data}"><figcaption><b>Figure {number}.</b> '
                         f"{_esc(spec.caption)}</figcaption></figure>")
