@@ -28,11 +28,6 @@ DEMO_WORKERS = 2
 STEPS = 6
 
 
-@dataclass(frozen=True)
-class _Named:
-    name: str
-
-
 def demo_dir():
     """The repository's ``demo/`` folder (beside the ``tomo`` package, which is
     installed editable); InputError naming the folder if its files are missing."""
@@ -105,8 +100,8 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     DemoResult
     """
     from .figures import style
-    from .figures.bundle import make_figures, prepare_folder
-    from .figures.versus import run_labels, versus_figure, versus_summary, versus_table
+    from .figures.bundle import FigureSpec, make_figures, prepare_folder
+    from .figures.versus import CAPTION, run_labels, versus_figure, versus_summary, versus_table
     from .report import write_report
     from .runfile import read_run
 
@@ -153,7 +148,8 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     _say(progress, "       " + versus_summary(versus_table(run, second, labels=labels), labels))
 
     t0 = step(5, "plot", f"figures into {out}")
-    figures = make_figures(run, skip_note=progress) + [(_Named("versus"), versus_figure(run, second, labels=labels))]
+    figures = make_figures(run, skip_note=progress)
+    figures.append((FigureSpec("versus", CAPTION, None), versus_figure(run, second, labels=labels)))
     pngs = {}
     try:
         for spec, fig in figures:
