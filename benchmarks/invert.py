@@ -80,6 +80,8 @@ def main(argv=None):
                         help="starting model (default: per case, see START)")
     parser.add_argument("--branches", type=int, default=None,
                         help="travel-time branches per side for the layered start")
+    parser.add_argument("--start-smoothing", type=float, default=None, metavar="CELLS",
+                        help="smoothing of the layered start, model cells (default: the library's)")
     parser.add_argument("--booking", choices=BOOKINGS, default=None,
                         help="ray-length booking (default: the library's)")
     args = parser.parse_args(argv)
@@ -90,7 +92,8 @@ def main(argv=None):
         kind = args.start or START[case]
         if kind == "layered":
             try:
-                start, _ = layered_start(picks, mesh, n_branches=args.branches)
+                smoothing = {} if args.start_smoothing is None else {"smooth_cells": args.start_smoothing}
+                start, _ = layered_start(picks, mesh, n_branches=args.branches, **smoothing)
             except TomoError as exc:  # the layered stage may refuse a line; fall back
                 print(f"  layered start failed ({exc}); gradient start", file=sys.stderr)
                 kind = "gradient"

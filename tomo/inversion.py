@@ -858,7 +858,7 @@ def _solve(A, b, R, rough, dev, lam, settings, x0=None):
 
 
 def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered", out_path="run.h5",
-                  progress=None, branches=None, **settings):
+                  progress=None, branches=None, start_smoothing=None, **settings):
     """Read the files, build the mesh and starting model, invert, write the run file.
 
     Parameters
@@ -878,6 +878,9 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
     branches : int, optional
         Travel-time branches on every side for the layered start
         (``tomo.starting.layered_start``; default: chosen by the BIC).
+    start_smoothing : float, optional
+        Gaussian smoothing of the layered start, model cells (default
+        ``tomo.starting.LAYERED_SMOOTHING_CELLS``; 0: the sharp layers).
     **settings
         Fields of :class:`InversionSettings`.
 
@@ -886,7 +889,7 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
     RunData
     """
     from .mesh import mesh_for_picks, read_mesh_spec
-    from .starting import gradient_start, layered_start
+    from .starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
     from .survey import read_picks, read_terrain
 
     try:
@@ -911,10 +914,14 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         if start != "layered":
             raise InputError("branches apply to the layered start only", field="branches")
         check_branch_count(branches)
+    if start_smoothing is not None and start != "layered":
+        raise InputError("start smoothing applies to the layered start only (the gradient start is smooth)",
+                         field="start_smoothing")
+    smoothing = LAYERED_SMOOTHING_CELLS if start_smoothing is None else check_smoothing(start_smoothing)
     start_used = start
     if start == "layered":
         try:
-            velocity, layered = layered_start(picks, mesh, terrain, n_branches=branches)
+            velocity, layered = layered_start(picks, mesh, terrain, n_branches=branches, smooth_cells=smoothing)
         except TomoError as exc:
             # a line the layered methods cannot read still gets a tomogram, from the
             # gradient start, with a note saying so
@@ -925,6 +932,7 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
                      f"fitted to the first arrivals")
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
+             "start_smoothing_cells": smoothing if start_used == "layered" else None,
              "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
              "terrain_file": None if terrain_path is None else str(terrain_path),
              "mesh_file": None if mesh_path is None else str(mesh_path)}

@@ -7,9 +7,22 @@ Two choices:
   and receiver on the surface, t = (2/k) asinh(k x / (2 v0)) (Slotnick 1959, Lessons in
   Seismic Computing, SEG; restated by Fomel, Luo & Zhao 2009, J. Comput. Phys. 228).
   With terrain, x is the straight-line shot-geophone distance (an approximation).
-- :func:`layered_start` runs the layered interpretation (``tomo.layered``) and paints
-  its layers onto the mesh. The layered methods assume that velocity increases with
-  depth; a hidden layer or a velocity inversion is carried into the start.
+- :func:`layered_start` runs the layered interpretation (``tomo.layered``), paints
+  its layers onto the mesh and smooths them (:func:`smooth_start`, a Gaussian of
+  ``LAYERED_SMOOTHING_CELLS`` cells in log-velocity). The layered methods assume that
+  velocity increases with depth; a hidden layer or a velocity inversion is carried
+  into the start.
+
+Why smooth the layered start: next to a sharp refractor that steps across the cells,
+the ray matrix over-predicts the time changes of the overburden cells just above it by
+10-40 % (measured; ``tomo.rays``), so Gauss-Newton steps from a sharp start are cut
+again and again, and a tomogram keeps much of a sharp starting interface. Measured on
+line (b) of ``benchmarks/invert.py`` from a two-layer reading: chi2 4.8 after 20
+iterations from the sharp start, 2.9, 1.44 and 1.42 from starts smoothed over 1, 2 and
+3 cells. On the recovery lines of tests/test_inversion.py (noise seeds 1-6) the worst
+well-covered contour error fell from 30 % to 18 % (trough) and from 27 % to 19 %
+(weathered zone) with 2 cells; on the demo line the bedrock contour's median error
+rose from 0.5 to 0.8 m while its largest fell from 2.6 to 1.5 m.
 
 Both are only starting points: the tomography changes them where the rays demand.
 """
@@ -21,7 +34,12 @@ from scipy.optimize import least_squares
 
 from .errors import InputError
 
-__all__ = ["fit_gradient", "gradient_start", "layered_start", "gradient_time"]
+__all__ = ["fit_gradient", "gradient_start", "layered_start", "smooth_start", "check_smoothing", "gradient_time",
+           "LAYERED_SMOOTHING_CELLS"]
+
+#: Standard deviation (model cells) of the Gaussian that smooths the layered start: two
+#: cells are about one station spacing on the default mesh (cells of half the spacing).
+LAYERED_SMOOTHING_CELLS = 2.0
 
 
 def gradient_time(distance, v0, k):
@@ -93,21 +111,60 @@ def gradient_start(picks, mesh, return_fit=False):
     return (v, fit) if return_fit else v
 
 
-def layered_start(picks, mesh, terrain=None, n_branches=None):
+def check_smoothing(value, name="start_smoothing"):
+    """The smoothing of a starting model as a float (cells); InputError naming
+    ``name`` unless it is a finite number >= 0."""
+    try:
+        sigma = float(value)
+    except (TypeError, ValueError):
+        sigma = float("nan")
+    if not (np.isfinite(sigma) and sigma >= 0):
+        raise InputError(f"start smoothing must be 0 or more model cells, got {value!r}", field=name)
+    return sigma
+
+
+def smooth_start(velocity, mesh, sigma_cells):
+    """A starting model smoothed by a Gaussian of ``sigma_cells`` model cells, m/s.
+
+    The smoothing acts on log-velocity (the inversion's parameter) over the ground
+    cells only: the Gaussian-weighted mean of the ground cells around each one
+    (normalised convolution), so air never leaks in and the model keeps its values
+    at the ground surface and the grid edges. A constant or, away from the edges, a
+    linearly varying log-velocity is returned unchanged. ``sigma_cells = 0`` returns
+    the model as it is. NaN in the air.
+    """
+    from scipy.ndimage import gaussian_filter
+
+    sigma = check_smoothing(sigma_cells)
+    ground = mesh.ground
+    v = np.where(ground, np.asarray(velocity, float), np.nan)
+    if sigma == 0:
+        return v
+    weight = ground.astype(float)
+    logv = np.where(ground, np.log(np.where(ground, v, 1.0)), 0.0)
+    num = gaussian_filter(logv, sigma, mode="nearest")
+    den = gaussian_filter(weight, sigma, mode="nearest")
+    return np.where(ground, np.exp(num / np.maximum(den, 1e-12)), np.nan)
+
+
+def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYERED_SMOOTHING_CELLS):
     """Starting model from the layered interpretation, m/s on the mesh (NaN in air).
 
     Calls ``tomo.layered.interpret_line(picks, terrain, n_branches=n_branches)`` and
-    ``tomo.layered.starting_model(result, mesh)``. Returns the velocity array and the
-    interpretation as a dict (stored in the run file). ``n_branches`` fixes the number
-    of travel-time branches on every side (default: chosen by the BIC, which reads the
-    curved branches of a strongly undulating refractor as extra layers).
+    ``tomo.layered.starting_model(result, mesh)``, then :func:`smooth_start` with
+    ``smooth_cells`` (0: the sharp layers; why smooth: module docstring). Returns the
+    velocity array and the interpretation as a dict (stored in the run file).
+    ``n_branches`` fixes the number of travel-time branches on every side (default:
+    chosen by the BIC, which reads the curved branches of a strongly undulating
+    refractor as extra layers).
     """
     from . import layered
 
+    check_smoothing(smooth_cells)
     result = layered.interpret_line(picks, terrain=terrain, n_branches=n_branches)
     v = np.asarray(layered.starting_model(result, mesh), float)
     v = np.where(mesh.ground, v, np.nan)
     if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):
         raise InputError("the layered interpretation gave no usable velocity for every ground cell; "
                          "use the gradient start")
-    return v, result.to_dict()
+    return smooth_start(v, mesh, smooth_cells), result.to_dict()

@@ -8,6 +8,7 @@ from . import note
 
 #: Defaults shown in --help come from the library's own settings.
 from ..inversion import InversionSettings as _Settings
+from ..starting import LAYERED_SMOOTHING_CELLS
 
 _D = _Settings()
 
@@ -31,6 +32,10 @@ def register(sub):
     p.add_argument("--branches", type=int, metavar="N",
                    help="travel-time branches on every side for the layered start, as in "
                         "'tomo layers --branches' (default: chosen by the BIC)")
+    p.add_argument("--start-smoothing", type=float, metavar="CELLS",
+                   help="Gaussian smoothing of the layered start, in model cells (default "
+                        f"{LAYERED_SMOOTHING_CELLS:g}, about one station spacing; 0 keeps the sharp layers, "
+                        "which the tomography moves poorly)")
     p.add_argument("--out", default="run.h5", metavar="RUN.h5", help="run file to write (default run.h5)")
     g = p.add_argument_group("inversion settings (defaults suit a typical line)")
     g.add_argument("--max-iterations", metavar="N", type=int, default=_D.max_iterations, help=f"most iterations (default {_D.max_iterations})")
@@ -76,7 +81,8 @@ def run(args):
     )
     try:
         result = run_inversion(args.picks, terrain_path=args.terrain, mesh_path=args.mesh, start=args.start,
-                               out_path=args.out, progress=_print_progress, branches=args.branches, **settings)
+                               out_path=args.out, progress=_print_progress, branches=args.branches,
+                               start_smoothing=args.start_smoothing, **settings)
     except InversionInterrupted as exc:
         print(f"tomo invert: {exc.message}", file=sys.stderr)
         return 130
