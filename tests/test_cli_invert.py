@@ -7,6 +7,7 @@ from tomo.cli import main
 from tomo.mesh import build_mesh
 from tomo.model import Layer, Model
 from tomo.runfile import read_run
+from tomo.starting import LAYERED_SMOOTHING_CELLS
 from tomo.survey import flat_terrain, write_picks
 from tomo.synth import synthetic_times
 
@@ -57,6 +58,20 @@ def test_default_layered_start(pick_file, tmp_path, capsys):
     assert status == 0, capsys.readouterr().err
     run = read_run(out)
     assert run.settings["start"] == "layered" and run.layered is not None
+    assert run.settings["start_smoothing_cells"] == LAYERED_SMOOTHING_CELLS
+
+
+def test_sharp_layered_start_on_request(pick_file, tmp_path, capsys):
+    # --start-smoothing 0: the layers as the layered interpretation paints them, sharp
+    picks, mesh = pick_file
+    out = tmp_path / "run.h5"
+    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1",
+                   "--start-smoothing", "0", "--max-iterations", "0"])
+    assert status == 0, capsys.readouterr().err
+    run = read_run(out)
+    assert run.settings["start_smoothing_cells"] == 0.0
+    values = np.unique(np.round(run.start_velocity[np.isfinite(run.start_velocity)], 6))
+    assert values.size == len(run.layered["layers"])  # one velocity per layer
 
 
 def test_layered_start_with_a_fixed_number_of_branches(pick_file, tmp_path, capsys):
@@ -70,7 +85,11 @@ def test_layered_start_with_a_fixed_number_of_branches(pick_file, tmp_path, caps
 
 
 @pytest.mark.parametrize("extra, message", [(["--branches", "9"], "must be 1 to"),
-                                            (["--branches", "2", "--start", "gradient"], "layered start only")])
+                                            (["--branches", "2", "--start", "gradient"], "layered start only"),
+                                            (["--start-smoothing", "-1"], "0 or more model cells"),
+                                            (["--start-smoothing", "nan"], "0 or more model cells"),
+                                            (["--start-smoothing", "1", "--start", "gradient"],
+                                             "layered start only")])
 def test_bad_branches_are_named(pick_file, tmp_path, capsys, extra, message):
     picks, mesh = pick_file
     out = tmp_path / "run.h5"

@@ -54,8 +54,9 @@ LAYERED_START_NOTE = (
     "The tomography started from this layered model, so the agreement is not an independent check: "
     "a tomogram keeps much of its starting interface where the picks allow it. On synthetic lines "
     "(tests/test_inversion.py) runs from the layered start fitted the picks as well as runs from the "
-    "1-D gradient start, yet their contours stayed 17-30 % of the depth off the true refractor in "
-    "places where the gradient-start contours were within 14 %. Run tomo invert --start gradient and "
+    "1-D gradient start, yet their contours stayed up to 18-19 % of the depth off the true refractor "
+    "(30 % from unsmoothed layers) where the gradient-start contours were within 14 %. Run tomo invert "
+    "--start gradient and "
     "compare the two tomograms (tomo report RUN.h5 --versus OTHER.h5): where they differ, the picks do "
     "not decide.")
 
