@@ -128,10 +128,11 @@ def smooth_start(velocity, mesh, sigma_cells):
 
     The smoothing acts on log-velocity (the inversion's parameter) over the ground
     cells only: the Gaussian-weighted mean of the ground cells around each one
-    (normalised convolution), so air never leaks in and the model keeps its values
-    at the ground surface and the grid edges. A constant or, away from the edges, a
-    linearly varying log-velocity is returned unchanged. ``sigma_cells = 0`` returns
-    the model as it is. NaN in the air.
+    (normalised convolution), so air never leaks in, cells at the ground surface and
+    the grid edges are means of ground cells only, and every value stays within the
+    model's range. A constant or, away from the surface and the edges, a linearly
+    varying log-velocity is returned unchanged. ``sigma_cells = 0`` returns the model
+    as it is. NaN in the air.
     """
     from scipy.ndimage import gaussian_filter
 
