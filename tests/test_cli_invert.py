@@ -59,6 +59,7 @@ def test_default_layered_start(pick_file, tmp_path, capsys):
     run = read_run(out)
     assert run.settings["start"] == "layered" and run.layered is not None
     assert run.settings["start_smoothing_cells"] == LAYERED_SMOOTHING_CELLS
+    assert run.converged and "--start gradient and compare" in capsys.readouterr().err
 
 
 def test_sharp_layered_start_on_request(pick_file, tmp_path, capsys):

@@ -101,4 +101,8 @@ def run(args):
             note("the layered starting model stays where the picks do not demand a change; "
                  "check its layers ('tomo layers', and --branches N to fix their number) "
                  "and compare a run with --start gradient")
+    elif result.settings.get("start") == "layered":
+        # a tomogram keeps much of its start where the picks allow: the plain check
+        note(f"to see what the picks leave open, invert them again with --start gradient and compare: "
+             f"tomo plot {args.out} --out FIGURES --versus OTHER.h5")
     return 0
