@@ -16,7 +16,7 @@ def register(sub):
     p.add_argument("--out", required=True, metavar="DIR", help="folder for the figures (created if needed)")
     p.add_argument("--format", dest="formats", action="append", choices=["png", "pdf", "svg"],
                    help="file format (repeatable; default png and pdf)")
-    add_versus_options(p, "also draw versus.png, the same iso-velocity surface in both and their difference")
+    add_versus_options(p, "also draw the 'versus' figure: the same iso-velocity surface in both and their difference")
     p.set_defaults(run=run)
 
 
