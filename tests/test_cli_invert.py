@@ -51,10 +51,15 @@ def test_invert_writes_a_run_file(pick_file, tmp_path, capsys):
     assert run.picks["observed_ms"].size == run.picks["computed_ms"].size
 
 
-def test_default_layered_start(pick_file, tmp_path, capsys):
+def _invert(pick_file, tmp_path, *extra):
+    """`tomo invert` on the test line with one worker; (exit status, run file path)."""
     picks, mesh = pick_file
     out = tmp_path / "run.h5"
-    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1"])
+    return main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1", *extra]), out
+
+
+def test_default_layered_start(pick_file, tmp_path, capsys):
+    status, out = _invert(pick_file, tmp_path)
     assert status == 0, capsys.readouterr().err
     run = read_run(out)
     assert run.settings["start"] == "layered" and run.layered is not None
@@ -64,10 +69,7 @@ def test_default_layered_start(pick_file, tmp_path, capsys):
 
 def test_sharp_layered_start_on_request(pick_file, tmp_path, capsys):
     # --start-smoothing 0: the layers as the layered interpretation paints them, sharp
-    picks, mesh = pick_file
-    out = tmp_path / "run.h5"
-    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1",
-                   "--start-smoothing", "0", "--max-iterations", "0"])
+    status, out = _invert(pick_file, tmp_path, "--start-smoothing", "0", "--max-iterations", "0")
     assert status == 0, capsys.readouterr().err
     run = read_run(out)
     assert run.settings["start_smoothing_cells"] == 0.0
@@ -76,10 +78,7 @@ def test_sharp_layered_start_on_request(pick_file, tmp_path, capsys):
 
 
 def test_layered_start_with_a_fixed_number_of_branches(pick_file, tmp_path, capsys):
-    picks, mesh = pick_file
-    out = tmp_path / "run.h5"
-    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1",
-                   "--branches", "2", "--max-iterations", "1"])
+    status, out = _invert(pick_file, tmp_path, "--branches", "2", "--max-iterations", "1")
     assert status == 0, capsys.readouterr().err
     run = read_run(out)
     assert run.settings["layered_branches"] == 2 and len(run.layered["layers"]) == 2
@@ -91,10 +90,8 @@ def test_layered_start_with_a_fixed_number_of_branches(pick_file, tmp_path, caps
                                             (["--start-smoothing", "nan"], "0 or more model cells"),
                                             (["--start-smoothing", "1", "--start", "gradient"],
                                              "layered start only")])
-def test_bad_branches_are_named(pick_file, tmp_path, capsys, extra, message):
-    picks, mesh = pick_file
-    out = tmp_path / "run.h5"
-    status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1"] + extra)
+def test_bad_start_options_are_named(pick_file, tmp_path, capsys, extra, message):
+    status, out = _invert(pick_file, tmp_path, *extra)
     err = capsys.readouterr().err
     assert status != 0 and message in err and "Traceback" not in err
     assert not out.exists()

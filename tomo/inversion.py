@@ -299,11 +299,11 @@ def _field_chunk(chunk):
                             for f, k in zip(fields_, chunk)])
     for f, k in zip(fields_, chunk):
         kept[k] = f.time
-    rays = {"origins": list(chunk), "rows": rows, "starts": targets[rows],
-            "which": np.concatenate([np.full(groups[k].size, n) for n, k in enumerate(chunk)]),
-            "sources": np.array([f.source for f in fields_]), "radii": np.array([f.radius for f in fields_])}
+    pending = {"origins": list(chunk), "rows": rows, "starts": targets[rows],
+               "which": np.concatenate([np.full(groups[k].size, n) for n, k in enumerate(chunk)]),
+               "sources": np.array([f.source for f in fields_]), "radii": np.array([f.radius for f in fields_])}
     fallbacks = [f.source for f in fields_ if f.fallback]
-    return rows, times, rays, _time.perf_counter() - t0, fallbacks
+    return rows, times, pending, _time.perf_counter() - t0, fallbacks
 
 
 def _shared_array(shape, dtype, shared):

@@ -322,7 +322,7 @@ def build_report(run, source=None, skip_note=None, figure_pngs=None, other=None,
                 for spec in FIGURES if spec.name in figure_pngs]
     versus_html = ""
     if other is not None:
-        labels = tuple(labels or ("this run", "second run"))
+        labels = tuple(labels or vs.LABELS)
         summary = vs.versus_summary(vs.versus_table(run, other, contour_m_s, labels), labels)
         if figure_pngs is not None and "versus" in figure_pngs:
             data = base64.b64encode(figure_pngs["versus"]).decode("ascii")

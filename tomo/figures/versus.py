@@ -22,7 +22,7 @@ from .section import _edges, colorbar, colour_range, display_cells, draw_base
 from ..errors import InputError
 from ..export import check_contour, contour_surface, covered
 
-__all__ = ["versus_table", "versus_figure", "versus_summary", "run_labels", "CAPTION"]
+__all__ = ["versus_table", "versus_figure", "versus_summary", "run_labels", "CAPTION", "LABELS"]
 
 #: Caption of the figure in reports.
 CAPTION = ("The same iso-velocity surface in two tomograms of these picks (solid: this run; dashed: the "
@@ -30,6 +30,9 @@ CAPTION = ("The same iso-velocity surface in two tomograms of these picks (solid
            "the surface; the difference is a lower bound on its uncertainty there.")
 
 _COLOURS = (style.PALETTE[4], style.PALETTE[1])  # sky blue, orange (Okabe-Ito)
+
+#: Names of the two runs when none are given.
+LABELS = ("this run", "other run")
 
 
 def run_labels(path, run, other_path, other):
@@ -53,7 +56,7 @@ def _contour_value(run, other, contour_m_s):
                      "refractor's velocity from", field="--contour")
 
 
-def versus_table(run, other, contour_m_s=None, labels=("this run", "other run")):
+def versus_table(run, other, contour_m_s=None, labels=LABELS):
     """The ``contour_m_s`` iso-velocity surface of two runs of one line, column by column.
 
     Parameters
@@ -109,7 +112,7 @@ def versus_table(run, other, contour_m_s=None, labels=("this run", "other run"))
             "this_constrained": a["constrained"], "other_constrained": cb}
 
 
-def versus_summary(table, labels=("this run", "other run")):
+def versus_summary(table, labels=LABELS):
     """One line: how far apart the two surfaces are where both are constrained."""
     d = table["difference_m"][table["constrained"]]
     head = f"{table['contour_m_s']:.0f} m/s surface, {labels[1]} minus {labels[0]}"
@@ -122,7 +125,7 @@ def versus_summary(table, labels=("this run", "other run")):
             "of investigation")
 
 
-def versus_figure(run, other, contour_m_s=None, labels=("this run", "other run"), title=None):
+def versus_figure(run, other, contour_m_s=None, labels=LABELS, title=None):
     """The first run's tomogram with both runs' ``contour_m_s`` surfaces, and their
     difference along the line (:func:`versus_table`). Returns a matplotlib Figure."""
     table = versus_table(run, other, contour_m_s, labels)
