@@ -160,9 +160,9 @@ def test_layered_start_fits_the_picks():
 
 
 def test_start_smoothing_keeps_constant_and_linear_models():
-    # A normalised Gaussian is symmetric with unit sum, so it returns a constant
-    # unchanged everywhere and, where its whole (truncated) support lies in the ground,
-    # a linear function too (its first moment is zero: exact, up to rounding).
+    # Closed form: a normalised Gaussian is symmetric with unit sum, so it returns a
+    # constant unchanged everywhere and, where its whole (truncated) support lies in the
+    # ground, a linear function too (its first moment is zero), exactly up to rounding.
     from tomo.starting import smooth_start
 
     terrain = Terrain(np.array([-30.0, 80.0]), np.array([100.0, 104.0]))  # uneven ground
@@ -322,7 +322,9 @@ def test_fields_from_the_geophones_give_the_same_rays():
 def test_rays_traced_later_are_the_rays_traced_at_once():
     # The line search times trial models without rays and traces only the one it keeps
     # (forward_pass(rays=False), then trace_pass): same times and the same matrix as
-    # one pass with rays, in this process and through the workers' shared fields.
+    # one pass with rays, in this process and through the workers' shared fields. An
+    # internal consistency check of that split; the matrix itself is checked against
+    # finite differences of the forward solver in tests/test_rays.py.
     from tomo.inversion import forward_pass, trace_pass
 
     mesh = inversion_mesh()
