@@ -8,7 +8,7 @@ from __future__ import annotations
 import tempfile
 import time
 
-from tomo.demo import run_demo
+from tomo.cli.workflow_demo import run_demo
 
 
 def main():

@@ -18,10 +18,10 @@ import time
 import numpy as np
 import skfmm
 
-from tomo.forward import node_speed, sample_field, solve_field
-from tomo.mesh import build_mesh
-from tomo.model import Layer, Model
-from tomo.survey import Terrain
+from tomo.survey.model import Layer, Model
+from tomo.survey.terrain import Terrain
+from tomo.tomography.forward import node_speed, sample_field, solve_field
+from tomo.tomography.mesh import build_mesh
 
 
 def best_of(func, repeat):

@@ -23,14 +23,17 @@ from dataclasses import replace
 
 import numpy as np
 
-from tomo.errors import TomoError
-from tomo.forward import travel_times
-from tomo.inversion import InversionSettings, default_mesh_spec, invert
-from tomo.mesh import MeshSpec, build_mesh, mesh_for_picks
-from tomo.model import Layer, Model
-from tomo.rays import BOOKINGS
-from tomo.starting import gradient_start, layered_start
-from tomo.survey import Picks, flat_terrain
+from tomo.core.errors import TomoError
+from tomo.survey.geometry import station_spacing
+from tomo.survey.meshspec import MeshSpec, inversion_mesh_spec
+from tomo.survey.model import Layer, Model
+from tomo.survey.picks import Picks
+from tomo.survey.terrain import flat_terrain
+from tomo.tomography.forward import travel_times
+from tomo.tomography.inversion import InversionSettings, invert
+from tomo.tomography.mesh import build_mesh, mesh_for_picks
+from tomo.tomography.rays import BOOKINGS
+from tomo.tomography.starting import gradient_start, layered_start
 
 CASES = {
     # name: (geophone spacing m, n geophones, shot spacing m, n shots, refractor depth m)
@@ -59,7 +62,7 @@ def make_line(case, seed=7):
     model = Model((Layer(600.0, 10.0, base), Layer(2500.0, 5.0)), terrain=terrain)
     # grid depth: three times the mean refractor depth (a user who knows the target sets
     # it so; the automatic third of the longest offset would be 63 m and 400 m here)
-    spec = default_mesh_spec(layout, MeshSpec(depth_m=3.0 * depth))
+    spec = inversion_mesh_spec(station_spacing(layout), MeshSpec(depth_m=3.0 * depth))
     mesh, spec = mesh_for_picks(layout, terrain, spec)
     fine = build_mesh(layout.receiver_x.min(), layout.receiver_x.max(), terrain, mesh.cell / 2,
                       spec.depth_m, mesh.refine, spec.padding_m)

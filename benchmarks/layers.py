@@ -11,9 +11,9 @@ import time
 
 import numpy as np
 
-from tomo.layered import interpret_line
-from tomo.qc import check_line
-from tomo.survey import Picks
+from tomo.layered.interpret import interpret_line
+from tomo.layered.qc import check_line
+from tomo.survey.picks import Picks
 
 
 def picks_for(n_geophones, n_shots=5, spacing=2.0, seed=0):

@@ -10,11 +10,11 @@ import sys
 import tempfile
 from pathlib import Path
 
-from tomo.demo import run_demo
+from tomo.cli.workflow_demo import run_demo
 from tomo.figures import style
 from tomo.figures.bundle import make_figures
 from tomo.figures.versus import run_labels, versus_figure
-from tomo.runfile import read_run
+from tomo.results.runfile import read_run
 
 IMAGES = Path(__file__).resolve().parent / "images"
 DPI = 110

@@ -10,11 +10,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from tomo.forward import travel_times
-from tomo.mesh import build_mesh
-from tomo.model import Layer, Model
-from tomo.runfile import RunData, write_run
-from tomo.survey import Picks, Terrain
+from tomo.results.runfile import write_run
+from tomo.survey.model import Layer, Model
+from tomo.survey.picks import Picks
+from tomo.survey.terrain import Terrain
+from tomo.tomography.forward import travel_times
+from tomo.tomography.mesh import build_mesh
+from tomo.tomography.run import RunData
 
 #: Depth below ground (m) to which the fake coverage reaches.
 COVER_DEPTH_M = 7.0

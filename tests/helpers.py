@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from tomo.survey import Picks
+from tomo.survey.picks import Picks
 
 
 def line_picks(terrain, receiver_x, source_x, min_offset=0.0):

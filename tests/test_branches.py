@@ -7,14 +7,13 @@ Sources:
 - numpy.polyfit as an independent least-squares line fitter.
 """
 
-import itertools
 import math
 
 import numpy as np
 import pytest
 
-from tomo.branches import SideProblem, fit_shots, fit_side, shot_sides
-from tomo.survey import Picks
+from tomo.layered.branches import SideProblem, fit_shots, fit_side, shot_sides
+from tomo.survey.picks import Picks
 
 
 def envelope(u, velocities, intercepts):

@@ -2,16 +2,16 @@
 
 import numpy as np
 import pytest
+from helpers import line_picks
 
 from tomo.cli import main
-from tomo.mesh import build_mesh
-from tomo.model import Layer, Model
-from tomo.runfile import read_run
-from tomo.starting import LAYERED_SMOOTHING_CELLS
-from tomo.survey import flat_terrain, write_picks
-from tomo.synth import synthetic_times
-
-from helpers import line_picks
+from tomo.results.runfile import read_run
+from tomo.survey.model import Layer, Model
+from tomo.survey.picks import write_picks
+from tomo.survey.terrain import flat_terrain
+from tomo.tomography.mesh import build_mesh
+from tomo.tomography.starting import LAYERED_SMOOTHING_CELLS
+from tomo.tomography.synth import synthetic_times
 
 TERRAIN = flat_terrain(-30.0, 80.0)
 
@@ -144,7 +144,7 @@ def test_ctrl_c_keeps_the_last_finished_iteration(pick_file, tmp_path, capsys, m
 
 
 def test_ground_from_station_elevations_without_terrain(pick_file, tmp_path, capsys):
-    from tomo.survey import read_picks
+    from tomo.survey.picks import read_picks
 
     picks_path, mesh = pick_file
     picks = read_picks(picks_path)

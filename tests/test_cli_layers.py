@@ -11,11 +11,10 @@ import math
 
 import numpy as np
 import pytest
+from helpers import pairs
 
 from tomo.cli import main
-from tomo.survey import Picks, write_picks
-
-from helpers import pairs
+from tomo.survey.picks import Picks, write_picks
 
 V1, V2, H = 500.0, 2000.0, 5.0
 

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from tomo.cli import main
-from tomo.survey import read_picks
+from tomo.survey.picks import read_picks
 
 MODEL = """
 [[layer]]

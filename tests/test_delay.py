@@ -15,15 +15,16 @@ import math
 
 import numpy as np
 import pytest
-
-from tomo.delay import depth_from_time_depth, plus_minus_times, write_profile_csv
-from tomo.layered import interpret_line
-from tomo.mesh import build_mesh
-from tomo.model import Layer, Model
-from tomo.survey import Picks, Terrain, flat_terrain
-from tomo.synth import synthetic_times
-
 from helpers import pairs
+
+from tomo.layered.delay import depth_from_time_depth, plus_minus_times
+from tomo.layered.interpret import interpret_line
+from tomo.layered.profile import write_profile_csv
+from tomo.survey.model import Layer, Model
+from tomo.survey.picks import Picks
+from tomo.survey.terrain import Terrain, flat_terrain
+from tomo.tomography.mesh import build_mesh
+from tomo.tomography.synth import synthetic_times
 
 
 def two_layer_picks(v1, v2, h, gx, shots, noise_s=0.0, seed=0):
@@ -203,7 +204,7 @@ def test_trough_in_the_refractor_is_one_refractor():
     assert np.all(depth[(x > 50) & (x < 60)] > 8.0)
     # and the starting model for the tomography follows it: below the ground of the
     # mesh, the top of the 2500 m/s layer at the delay-time depth (to one 0.5 m cell)
-    from tomo.layered import starting_model
+    from tomo.tomography.starting import paint_layers as starting_model
 
     grid = build_mesh(-13.0, 107.0, terrain, cell=0.5, depth=16.0)
     v = starting_model(result, grid)

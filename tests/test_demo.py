@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 
 import tomo
+from tomo.analysis.surface import contour_surface
 from tomo.cli import main
-from tomo.export import contour_surface
-from tomo.model import read_model
-from tomo.runfile import read_run
+from tomo.results.runfile import read_run
+from tomo.survey.model import read_model
 
-DEMO = Path(tomo.__file__).resolve().parents[1] / "demo"
+DEMO = Path(tomo.__file__).resolve().parent / "data" / "demo"
 
 
 def _trough_centre(x, depth, baseline_excess_m=2.0):
@@ -66,11 +66,10 @@ def test_demo_recovers_the_weathered_zone(demo_run):
 
 
 def test_demo_files_missing_is_a_clear_error(monkeypatch, tmp_path, capsys):
-    import tomo.demo as demo
+    import tomo.cli.workflow_demo as demo
 
-    fake_pkg = tmp_path / "pkg" / "tomo"
-    fake_pkg.mkdir(parents=True)
-    monkeypatch.setattr(tomo, "__file__", str(fake_pkg / "__init__.py"))
+    # a broken installation: the package data lacks a file the demo needs
+    monkeypatch.setattr(demo, "DEMO_FILES", ("not-installed.csv",) + demo.DEMO_FILES)
     assert main(["demo", "--out", str(tmp_path / "out")]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "demo file(s) missing" in err

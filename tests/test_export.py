@@ -6,14 +6,13 @@ from __future__ import annotations
 import h5py
 import numpy as np
 import pytest
-
-from tomo.cli import main
-from tomo.export import (contour_surface, covered, deepest_ray_elevation, investigation_elevation,
-                         ray_cells)
-from tomo.fileio import read_csv_rows
-from tomo.runfile import write_run
-
 from _runs import COVER_DEPTH_M, make_run
+
+from tomo.analysis.coverage import covered, deepest_ray_elevation, investigation_elevation, ray_cells
+from tomo.analysis.surface import contour_surface
+from tomo.cli import main
+from tomo.core.fileio import read_csv_rows
+from tomo.results.runfile import write_run
 
 
 @pytest.fixture(scope="module")

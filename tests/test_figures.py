@@ -8,16 +8,15 @@ import matplotlib.colors as mcolors
 import matplotlib.image as mimage
 import numpy as np
 import pytest
+from _runs import make_run
 
+from tomo.analysis.coverage import covered, investigation_elevation
 from tomo.cli import main
-from tomo.errors import InputError
-from tomo.export import covered, investigation_elevation
+from tomo.core.errors import InputError
 from tomo.figures import compare, fit, section, style
 from tomo.figures.bundle import FIGURES
 from tomo.figures.versus import versus_figure, versus_summary, versus_table
-from tomo.runfile import write_run
-
-from _runs import make_run
+from tomo.results.runfile import write_run
 
 
 @pytest.fixture(scope="module")

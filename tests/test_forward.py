@@ -9,16 +9,16 @@ interface within 1 % or 0.3 ms.
 import numpy as np
 import pytest
 import scipy.sparse as sp
+import skfmm
+from helpers import head_wave_times, line_picks
 from scipy.sparse.csgraph import dijkstra
 
-import skfmm
-
-from tomo.forward import solve_field, sample_field, travel_times
-from tomo.mesh import MeshSpec, build_mesh, mesh_for_picks
-from tomo.model import Body, Layer, Model
-from tomo.survey import Picks, Terrain, flat_terrain
-
-from helpers import head_wave_times, line_picks
+from tomo.survey.meshspec import MeshSpec
+from tomo.survey.model import Body, Layer, Model
+from tomo.survey.picks import Picks
+from tomo.survey.terrain import Terrain, flat_terrain
+from tomo.tomography.forward import sample_field, solve_field, travel_times
+from tomo.tomography.mesh import build_mesh, mesh_for_picks
 
 SPACING = 2.5
 RECEIVERS = np.arange(48) * SPACING
@@ -231,7 +231,7 @@ def test_reciprocity_gives_the_same_times():
 
 
 def test_second_order_failure_falls_back_to_first_order(monkeypatch):
-    import tomo.forward as fwd
+    import tomo.tomography.forward as fwd
 
     real = skfmm.travel_time
 

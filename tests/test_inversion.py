@@ -8,18 +8,17 @@ discretisation, and Gaussian noise of 0.5 ms (seeded) is added. 24 geophones at 
 
 import numpy as np
 import pytest
-
-from tomo.errors import InputError
-from tomo.forward import travel_times
-from tomo.inversion import InversionInterrupted, InversionSettings, invert, smoothness_operator
-from tomo.mesh import build_mesh
-from tomo.model import Layer, Model
-from tomo.runfile import read_run
-from tomo.starting import fit_gradient, gradient_start, gradient_time
-from tomo.synth import synthetic_times
-from tomo.survey import Terrain, flat_terrain
-
 from helpers import line_picks
+
+from tomo.core.errors import InputError
+from tomo.results.runfile import RunWriter, read_run
+from tomo.survey.model import Layer, Model
+from tomo.survey.terrain import Terrain, flat_terrain
+from tomo.tomography.forward import travel_times
+from tomo.tomography.inversion import InversionInterrupted, InversionSettings, invert, smoothness_operator
+from tomo.tomography.mesh import build_mesh
+from tomo.tomography.starting import fit_gradient, gradient_start, gradient_time
+from tomo.tomography.synth import synthetic_times
 
 TERRAIN = flat_terrain(-30.0, 80.0)
 GEOPHONES = np.arange(24) * 2.0
@@ -147,7 +146,7 @@ def test_layered_start_fits_the_picks():
     # this small line has the refractor 5-14 % fast over noise seeds 1-6 (2.1-2.3 km/s
     # against 2 km/s true, measured); the tomogram fits the picks near it equally well
     # (non-uniqueness).
-    from tomo.starting import layered_start
+    from tomo.tomography.starting import layered_start
 
     base = np.array([[0.0, 8.0], [12.0, 8.0], [23.0, 12.0], [34.0, 8.0], [46.0, 8.0]])
     picks = synthetic(Model((Layer(500.0, 0.0, base), Layer(2000.0)), terrain=TERRAIN))
@@ -163,7 +162,7 @@ def test_start_smoothing_keeps_constant_and_linear_models():
     # Closed form: a normalised Gaussian is symmetric with unit sum, so it returns a
     # constant unchanged everywhere and, where its whole (truncated) support lies in the
     # ground, a linear function too (its first moment is zero), exactly up to rounding.
-    from tomo.starting import smooth_start
+    from tomo.tomography.starting import smooth_start
 
     terrain = Terrain(np.array([-30.0, 80.0]), np.array([100.0, 104.0]))  # uneven ground
     mesh = build_mesh(-4.0, 50.0, terrain, 1.0, DEPTH_M, refine=2, padding=2.0)
@@ -211,7 +210,7 @@ def test_noise_free_picks_of_the_start_model_stop_at_once(tmp_path):
                      reciprocity=False).time_s
     picks = layout.with_times(t)  # no sigma: the default sigma is used and noted
     out = tmp_path / "run.h5"
-    run = invert(picks, mesh, start, InversionSettings(workers=1), out_path=out)
+    run = invert(picks, mesh, start, InversionSettings(workers=1), checkpoint=RunWriter(out))
     assert run.iterations == 0 and run.stop_reason == "chi2 at target" and run.converged
     assert run.chi2 < 1e-6
     assert any("sigma = 1 ms assumed" in n for n in run.notes)
@@ -289,7 +288,7 @@ def test_interrupted_run_keeps_the_last_finished_iteration(small_case, tmp_path)
             raise KeyboardInterrupt  # Ctrl-C while iteration 2 would start
 
     with pytest.raises(InversionInterrupted, match="holds the last finished iteration") as caught:
-        invert(picks, mesh, start, InversionSettings(workers=1), progress=progress, out_path=out)
+        invert(picks, mesh, start, InversionSettings(workers=1), progress=progress, checkpoint=RunWriter(out))
     assert isinstance(caught.value, KeyboardInterrupt)
     back = read_run(out)
     assert back.iterations == 1 and back.stop_reason == "interrupted"
@@ -306,7 +305,7 @@ def test_fields_from_the_geophones_give_the_same_rays():
     # agree to the solver's accuracy target (0.5 % or 0.2 ms, issue 2) and the ray
     # matrices predict the same time change for a smooth perturbation (2 %: two
     # independent discretisations of the same paths).
-    from tomo.inversion import forward_pass
+    from tomo.tomography.inversion import forward_pass
 
     mesh = inversion_mesh()
     layout = line_picks(TERRAIN, [0.0, 14.0, 30.0, 46.0], np.arange(-4.0, 51.0, 3.0))
@@ -325,7 +324,7 @@ def test_rays_traced_later_are_the_rays_traced_at_once():
     # one pass with rays, in this process and through the workers' shared fields. An
     # internal consistency check of that split; the matrix itself is checked against
     # finite differences of the forward solver in tests/test_rays.py.
-    from tomo.inversion import forward_pass, trace_pass
+    from tomo.tomography.inversion import forward_pass, trace_pass
 
     mesh = inversion_mesh()
     layout = line_picks(TERRAIN, GEOPHONES, SHOTS)

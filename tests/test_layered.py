@@ -13,15 +13,21 @@ import math
 
 import numpy as np
 import pytest
-
-from tomo.layered import (
-    LayeredResult, critical_distances, crossover_distances, dipping_refractor, intercept_thicknesses,
-    intercept_times, interpret_line, starting_model,
-)
-from tomo.mesh import build_mesh
-from tomo.survey import Picks, Terrain, flat_terrain
-
 from helpers import head_wave_times
+
+from tomo.layered.formulas import (
+    critical_distances,
+    crossover_distances,
+    dipping_refractor,
+    intercept_thicknesses,
+    intercept_times,
+)
+from tomo.layered.interpret import interpret_line
+from tomo.layered.result import LayeredResult
+from tomo.survey.picks import Picks
+from tomo.survey.terrain import Terrain, flat_terrain
+from tomo.tomography.mesh import build_mesh
+from tomo.tomography.starting import paint_layers as starting_model
 
 
 def line_picks(velocities, thicknesses, n_geophones, spacing, noise_s, seed, shots=None):
@@ -272,8 +278,8 @@ def short_line(base):
     """The short line of tests/test_inversion.py: 24 geophones at 2 m, nine shots (two off
     the ends, both ends, interior), 500 over 2000 m/s, times from tomo's fast-marching
     solver on a 0.25 m grid plus 0.5 ms Gaussian noise (seeded)."""
-    from tomo.model import Layer, Model
-    from tomo.synth import synthetic_times
+    from tomo.survey.model import Layer, Model
+    from tomo.tomography.synth import synthetic_times
 
     terrain = flat_terrain(-30.0, 80.0)
     gx = np.arange(24) * 2.0
@@ -298,7 +304,7 @@ def test_short_line_with_a_trough_in_the_refractor():
     # Geophys. Prosp. 7, plus-minus method); the stretch all of them share gives the
     # slope. Expected values are the model's own: V1 = 500, V2 = 2000 m/s, depths
     # interpolated from its base points.
-    from tomo.layered import interface_depths
+    from tomo.layered.result import interface_depths
 
     base = np.array([[0.0, 8.0], [12.0, 8.0], [23.0, 12.0], [34.0, 8.0], [46.0, 8.0]])
     layout, clean, terrain = short_line(base)

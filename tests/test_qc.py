@@ -12,11 +12,10 @@ import math
 
 import numpy as np
 import pytest
-
-from tomo.qc import check_line
-from tomo.survey import Picks
-
 from helpers import pairs
+
+from tomo.layered.qc import check_line
+from tomo.survey.picks import Picks
 
 
 def two_layer(x):

@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-from tomo.forward import sample_field, solve_field
-from tomo.mesh import build_mesh
-from tomo.rays import trace_rays
-from tomo.survey import flat_terrain
+from tomo.survey.terrain import flat_terrain
+from tomo.tomography.forward import sample_field, solve_field
+from tomo.tomography.mesh import build_mesh
+from tomo.tomography.rays import trace_rays
 
 CELL = 1.0
 SOURCE_X = 2.0
@@ -138,7 +138,7 @@ def test_cell_booking_equals_node_booking_mapped_by_p(refine, booking):
     # (the definition in tomo/rays.py), for points below the surface cells. Reference:
     # a dense node-by-node construction here (bilinear weights as in Press et al. 2007,
     # Numerical Recipes, 3rd ed., sec. 3.6), no shortcut shared with the code tested.
-    from tomo.rays import _CellBooking
+    from tomo.tomography.rays import _CellBooking
 
     mesh = build_mesh(0.0, 20.0, flat_terrain(-5.0, 25.0), CELL, 8.0, refine=refine, padding=1.0)
     rng = np.random.default_rng(5)
@@ -172,8 +172,8 @@ def test_cell_booking_over_terrain_keeps_length_in_the_ground(refine):
     # Pieces anywhere in the ground under uneven terrain, the surface skin included:
     # every metre is booked (row sums = lengths) and only to ground cells (conservation
     # of path length; common practice, no outside source).
-    from tomo.rays import _CellBooking
-    from tomo.survey import Terrain
+    from tomo.survey.terrain import Terrain
+    from tomo.tomography.rays import _CellBooking
 
     terrain = Terrain(np.array([-5.0, 4.0, 9.0, 15.0, 25.0]), np.array([0.0, 2.5, -1.0, 1.5, 0.5]))
     mesh = build_mesh(0.0, 20.0, terrain, CELL, 6.0, refine=refine, padding=1.0)

@@ -8,13 +8,12 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from _runs import make_run
 
 from tomo.cli import main
 from tomo.figures.bundle import FIGURES
-from tomo.report import CAUTIONS, LAYERED_START_NOTE, build_report, pick_qc
-from tomo.runfile import write_run
-
-from _runs import make_run
+from tomo.results.report import CAUTIONS, LAYERED_START_NOTE, build_report, pick_qc
+from tomo.results.runfile import write_run
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
@@ -118,7 +117,7 @@ def test_report_without_layered_result_says_so(reports):
 
 
 def test_pick_qc_is_that_of_tomo_check(reports):
-    from tomo.qc import RECIPROCAL_TOL_MS
+    from tomo.layered.qc import RECIPROCAL_TOL_MS
 
     run, text = reports[True]
     # two shots at geophone positions 0 and 33 m recorded at each other's position

@@ -6,10 +6,12 @@ Each bad input gets one InputError naming file, line and field (issue 2).
 import numpy as np
 import pytest
 
-from tomo.errors import InputError
-from tomo.mesh import build_mesh, mesh_for_picks, read_mesh_spec
-from tomo.model import read_model
-from tomo.survey import Picks, Terrain, read_picks, read_terrain, write_picks
+from tomo.core.errors import InputError
+from tomo.survey.meshspec import read_mesh_spec
+from tomo.survey.model import read_model
+from tomo.survey.picks import Picks, read_picks, write_picks
+from tomo.survey.terrain import Terrain, read_terrain
+from tomo.tomography.mesh import build_mesh, mesh_for_picks
 
 
 def write(path, text):
@@ -184,7 +186,7 @@ def test_mesh_masks_air_and_averages_cells():
 def test_mesh_must_cover_stations():
     t = Terrain(np.array([0.0, 40.0]), np.array([0.0, 0.0]))
     p = Picks([0.0], [-80.0], [10.0], [0.0])
-    from tomo.mesh import MeshSpec
+    from tomo.survey.meshspec import MeshSpec
     with pytest.raises(InputError, match="outside the mesh"):
         mesh_for_picks(p, t, MeshSpec(depth_m=20.0))
 

@@ -12,8 +12,8 @@ import argparse
 import importlib
 import sys
 
-from .. import __version__
-from ..errors import TomoError
+from ..core.errors import TomoError
+from ..core.version import __version__
 
 #: Subcommands in the order a user meets them, and the module that implements each.
 COMMANDS = ["synth", "check", "layers", "invert", "plot", "export", "report", "demo"]
@@ -84,9 +84,9 @@ def add_versus_options(parser, what):
 
 def read_versus(args):
     """The run files of ``args.run_file`` and ``--versus``: (run, other or None, labels or None)."""
-    from ..errors import InputError
+    from ..core.errors import InputError
     from ..figures.versus import run_labels
-    from ..runfile import read_run
+    from ..results.runfile import read_run
 
     if args.contour is not None and args.versus is None:
         raise InputError("--contour is the velocity of the surface compared with --versus; give --versus OTHER.h5",

@@ -6,8 +6,8 @@ from . import note
 
 
 def register(sub):
-    from ..qc import OUTLIER_SIGMA, RECIPROCAL_TOL_MS, RECIPROCAL_TOL_PCT
-    from ..branches import DEFAULT_SIGMA_MS
+    from ..layered.branches import DEFAULT_SIGMA_MS, OUTLIER_SIGMA
+    from ..layered.qc import RECIPROCAL_TOL_MS, RECIPROCAL_TOL_PCT
 
     p = sub.add_parser(
         "check", help="quality-control a pick file",
@@ -31,9 +31,10 @@ def register(sub):
 
 
 def run(args):
-    from ..errors import InputError
-    from ..qc import check_line
-    from ..survey import read_picks, read_terrain
+    from ..core.errors import InputError
+    from ..layered.qc import check_line
+    from ..survey.picks import read_picks
+    from ..survey.terrain import read_terrain
 
     for name in ("reciprocal_tol_ms", "reciprocal_tol_pct", "outlier_sigma", "sigma_ms"):
         if not getattr(args, name) > 0:

@@ -19,8 +19,8 @@ def register(sub):
 
 
 def run(args):
-    from ..demo import run_demo
-    from ..errors import InputError
+    from ..core.errors import InputError
+    from .workflow_demo import run_demo
 
     if args.workers < 1:
         raise InputError(f"--workers must be >= 1, got {args.workers}")

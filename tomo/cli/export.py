@@ -20,9 +20,11 @@ def register(sub):
 
 
 def run(args):
-    from ..errors import InputError
-    from ..export import check_output_path, contour_surface, write_grid, write_surface
-    from ..runfile import read_run
+    from ..analysis.surface import contour_surface
+    from ..core.errors import InputError
+    from ..core.fileio import check_output_path
+    from ..results.export import write_grid, write_surface
+    from ..results.runfile import read_run
 
     if args.grid is None and args.surface is None:
         raise InputError("nothing to export: give --grid GRID.csv and/or --contour V --surface SURFACE.csv")

@@ -4,11 +4,10 @@ from __future__ import annotations
 
 import sys
 
-from . import note
-
 #: Defaults shown in --help come from the library's own settings.
-from ..inversion import InversionSettings as _Settings
-from ..starting import LAYERED_SMOOTHING_CELLS
+from ..tomography.inversion import InversionSettings as _Settings
+from ..tomography.starting import LAYERED_SMOOTHING_CELLS
+from . import note
 
 _D = _Settings()
 
@@ -70,7 +69,8 @@ def _print_progress(info):
 
 
 def run(args):
-    from ..inversion import InversionInterrupted, run_inversion
+    from ..api import run_inversion
+    from ..tomography.inversion import InversionInterrupted
 
     settings = dict(
         max_iterations=args.max_iterations, chi2_target=args.chi2_target,

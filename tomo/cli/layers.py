@@ -9,7 +9,7 @@ from . import note
 
 
 def register(sub):
-    from ..branches import DEFAULT_SIGMA_MS, MAX_BRANCHES
+    from ..layered.branches import DEFAULT_SIGMA_MS, MAX_BRANCHES
 
     p = sub.add_parser(
         "layers", help="layered interpretation (intercept times, dips, delay times)",
@@ -49,7 +49,7 @@ def register(sub):
 
 
 def _floats(text, option):
-    from ..errors import InputError
+    from ..core.errors import InputError
 
     try:
         values = [float(v) for v in text.split(",") if v.strip()]
@@ -61,7 +61,7 @@ def _floats(text, option):
 
 
 def _side_key(text, option):
-    from ..errors import InputError
+    from ..core.errors import InputError
 
     parts = text.split(":")
     if len(parts) != 3 or parts[1].lower() not in ("left", "right"):
@@ -75,8 +75,8 @@ def _side_key(text, option):
 
 def options_from_args(args):
     """Library keyword arguments from the parsed command line."""
-    from ..branches import check_branch_count
-    from ..errors import InputError
+    from ..core.errors import InputError
+    from ..layered.branches import check_branch_count
 
     if args.branches is not None:
         check_branch_count(args.branches, "--branches")
@@ -125,8 +125,9 @@ class _DefaultDict(dict):
 
 
 def run(args):
-    from ..layered import interpret_line
-    from ..survey import read_picks, read_terrain
+    from ..layered.interpret import interpret_line
+    from ..survey.picks import read_picks
+    from ..survey.terrain import read_terrain
 
     options = options_from_args(args)
     terrain = read_terrain(args.terrain) if args.terrain else None
@@ -139,15 +140,16 @@ def run(args):
     # outputs first, so that a closed stdout cannot lose them
     written = []
     if args.out:
-        from ..fileio import atomic_open
+        from ..core.fileio import atomic_open
 
         with atomic_open(args.out, "w", encoding="utf-8") as out:
             json.dump(result.to_dict(), out, indent=1, allow_nan=False)
             out.write("\n")
         written.append(f"wrote {args.out}")
     if args.profile:
-        from ..delay import RefractorProfile, write_profile_csv
         import numpy as np
+
+        from ..layered.profile import RefractorProfile, write_profile_csv
 
         prof = result.profile
         if prof is None:

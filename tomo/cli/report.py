@@ -18,7 +18,7 @@ def register(sub):
 
 
 def run(args):
-    from ..report import write_report
+    from ..results.report import write_report
 
     run_data, other, labels = read_versus(args)
     path = write_report(args.out, run_data, source=args.run_file, skip_note=note, other=other, labels=labels,

@@ -9,7 +9,7 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..errors import InputError
+from ..core.errors import InputError
 from . import compare, fit, section, style
 
 __all__ = ["FIGURES", "FigureSpec", "make_figures", "plot_run"]

@@ -21,9 +21,10 @@ from __future__ import annotations
 import numpy as np
 from matplotlib import patheffects
 
+from ..analysis.coverage import covered
+from ..analysis.surface import contour_surface
 from . import style
 from .section import _edges, colorbar, colour_range, display_cells, draw_base
-from ..export import contour_surface, covered
 
 __all__ = ["refractor_profiles", "layer_velocities", "refractor_contour", "layered_vs_gridded",
            "compare_table", "compare_tables"]

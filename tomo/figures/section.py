@@ -17,8 +17,8 @@ from matplotlib.patches import Patch, PathPatch
 from matplotlib.path import Path as MplPath
 from matplotlib.ticker import FuncFormatter, MaxNLocator
 
+from ..analysis.coverage import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
 from . import style
-from ..export import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
            "display_cells", "colorbar", "colour_range", "stations", "view_window"]

@@ -60,7 +60,7 @@ def save(fig, path):
     """Save a figure (PNG or PDF by extension) atomically and close it."""
     from pathlib import Path
 
-    from ..fileio import atomic_path
+    from ..core.fileio import atomic_path
 
     path = Path(path)
     with atomic_path(path) as tmp:

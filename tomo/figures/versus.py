@@ -16,11 +16,12 @@ from pathlib import Path
 
 import numpy as np
 
+from ..analysis.coverage import covered
+from ..analysis.surface import check_contour, contour_surface
+from ..core.errors import InputError
 from . import style
 from .compare import _HALO, refractor_contour, stack_under
 from .section import _edges, colorbar, colour_range, display_cells, draw_base
-from ..errors import InputError
-from ..export import check_contour, contour_surface, covered
 
 __all__ = ["versus_table", "versus_figure", "versus_summary", "run_labels", "CAPTION", "LABELS"]
 

@@ -17,8 +17,8 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .fileio import atomic_open
+from ..core.fileio import atomic_open
+from ..core.version import __version__
 
 __all__ = ["CAUTIONS", "LAYERED_START_NOTE", "pick_qc", "build_report", "write_report"]
 
@@ -106,8 +106,8 @@ class _Raw(str):
 
 def pick_qc(run):
     """The pick QC of ``tomo check`` (:func:`tomo.qc.check_line`) on the run's picks."""
-    from .qc import check_line
-    from .survey import Picks
+    from ..layered.qc import check_line
+    from ..survey.picks import Picks
 
     p = run.picks
     sigma = np.asarray(p["sigma_ms"], float)
@@ -118,7 +118,7 @@ def pick_qc(run):
 
 
 def _figure_png(fig, dpi=130):
-    from .figures import style
+    from ..figures import style
 
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight")
@@ -213,7 +213,7 @@ def _settings_section(run):
 
 
 def _layered_section(run):
-    from .figures.compare import compare_tables, layer_velocities
+    from ..figures.compare import compare_tables, layer_velocities
 
     if not run.layered:
         return '<p class="note">This run file holds no layered interpretation; the table and the comparison figure are left out.</p>'
@@ -259,7 +259,7 @@ def _layered_section(run):
 
 def _surface_table(run, velocity_m_s, step_m=10.0):
     """Depth to an iso-velocity surface at round distances along the spread."""
-    from .export import contour_surface
+    from ..analysis.surface import contour_surface
 
     surface = contour_surface(run, velocity_m_s)
     geos = np.unique(np.round(run.picks["receiver_x"], 3))
@@ -310,10 +310,10 @@ def build_report(run, source=None, skip_note=None, figure_pngs=None, other=None,
     ``contour_m_s`` surface in both (:mod:`tomo.figures.versus`; ``labels`` name the
     two runs).
     """
-    from .figures.bundle import FIGURES, FigureSpec, make_figures
-    from .figures import versus as vs
+    from ..figures import versus as vs
+    from ..figures.bundle import FIGURES, FigureSpec, make_figures
 
-    created = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+    created = _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
     title = "Seismic refraction interpretation"
     if figure_pngs is None:
         figs = [(spec, _figure_png(fig)) for spec, fig in make_figures(run, skip_note)]
@@ -382,7 +382,7 @@ def write_report(path, run, source=None, skip_note=None, figure_pngs=None, other
                  contour_m_s=None):
     """Build the report (see :func:`build_report`) and write it atomically to ``path``;
     returns the path."""
-    from .export import check_output_path
+    from ..core.fileio import check_output_path
 
     check_output_path(path)
     text = build_report(run, source=source, skip_note=skip_note, figure_pngs=figure_pngs, other=other,

@@ -32,10 +32,12 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import least_squares
 
-from .errors import InputError
+from ..core.errors import InputError
+from ..layered.interpret import interpret_line
+from ..layered.result import interface_depths
 
-__all__ = ["fit_gradient", "gradient_start", "layered_start", "smooth_start", "check_smoothing", "gradient_time",
-           "LAYERED_SMOOTHING_CELLS"]
+__all__ = ["fit_gradient", "gradient_start", "layered_start", "paint_layers", "smooth_start", "check_smoothing",
+           "gradient_time", "LAYERED_SMOOTHING_CELLS"]
 
 #: Standard deviation (model cells) of the Gaussian that smooths the layered start: two
 #: cells are about one station spacing on the default mesh (cells of half the spacing).
@@ -152,20 +154,41 @@ def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYER
     """Starting model from the layered interpretation, m/s on the mesh (NaN in air).
 
     Calls ``tomo.layered.interpret_line(picks, terrain, n_branches=n_branches)`` and
-    ``tomo.layered.starting_model(result, mesh)``, then :func:`smooth_start` with
+    :func:`paint_layers`, then :func:`smooth_start` with
     ``smooth_cells`` (0: the sharp layers; why smooth: module docstring). Returns the
     velocity array and the interpretation as a dict (stored in the run file).
     ``n_branches`` fixes the number of travel-time branches on every side (default:
     chosen by the BIC, which reads the curved branches of a strongly undulating
     refractor as extra layers).
     """
-    from . import layered
-
     check_smoothing(smooth_cells)
-    result = layered.interpret_line(picks, terrain=terrain, n_branches=n_branches)
-    v = np.asarray(layered.starting_model(result, mesh), float)
+    result = interpret_line(picks, terrain=terrain, n_branches=n_branches)
+    v = np.asarray(paint_layers(result, mesh), float)
     v = np.where(mesh.ground, v, np.nan)
     if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):
         raise InputError("the layered interpretation gave no usable velocity for every ground cell; "
                          "use the gradient start")
     return smooth_start(v, mesh, smooth_cells), result.to_dict()
+
+
+def paint_layers(result, mesh):
+    """A velocity grid (m/s) on ``mesh`` from a layered interpretation.
+
+    Layer velocities of the line table; layer tops from the delay-time refractor where
+    known and from the intercept-time depths elsewhere (:func:`interface_depths`).
+    Depths are below the ground of the mesh's terrain.
+
+    Returns
+    -------
+    ndarray, shape (mesh.nz, mesh.nx)
+        Velocity, m/s; NaN in the air.
+    """
+    v = np.array([lay["velocity_m_s"] for lay in result.layers], float)
+    depth = mesh.depth
+    out = np.full(mesh.shape, v[0])
+    if v.size > 1:
+        tops = interface_depths(result, mesh.x)  # (n-1, nx)
+        for k in range(1, v.size):
+            out = np.where(depth >= tops[k - 1][None, :], v[k], out)
+    out[~mesh.ground] = np.nan
+    return out

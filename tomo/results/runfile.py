@@ -25,16 +25,16 @@ from __future__ import annotations
 
 import datetime as _dt
 import json
-from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .errors import InputError
-from .fileio import atomic_path
+from ..core.errors import InputError
+from ..core.fileio import atomic_path
+from ..core.version import __version__
+from ..tomography.run import RunData
 
-__all__ = ["RunData", "write_run", "read_run", "FORMAT", "FORMAT_VERSION"]
+__all__ = ["write_run", "read_run", "RunWriter", "FORMAT", "FORMAT_VERSION"]
 
 FORMAT = "tomo-run"
 FORMAT_VERSION = 1
@@ -43,71 +43,11 @@ _PICK_FIELDS = ("source_x", "source_z", "receiver_x", "receiver_z", "observed_ms
 _HISTORY_FIELDS = ("chi2", "rms_ms", "lambda", "step")
 
 
-@dataclass
-class RunData:
-    """Everything in a run file, as numpy arrays and plain Python values.
-
-    Attributes
-    ----------
-    x, z : ndarray
-        Cell-centre distance (nx) and elevation (nz), m.
-    velocity, coverage, start_velocity : ndarray (nz, nx)
-        Final model (m/s, NaN in air), ray length per cell (m), starting model (m/s).
-    terrain_x, terrain_z : ndarray
-        Ground elevation points, m.
-    picks : dict of str -> ndarray
-        ``source_x, source_z, receiver_x, receiver_z`` (m) and ``observed_ms,
-        computed_ms, sigma_ms`` (ms), one value per pick.
-    history : dict of str -> ndarray
-        ``chi2, rms_ms, lambda, step`` per iteration, entry 0 for the starting model.
-    iteration_models : list of ndarray (nz, nx)
-        Model after each finished iteration, m/s.
-    chi2, rms_ms : float
-        Final weighted misfit (mean of (residual / sigma)^2) and RMS residual, ms.
-    iterations : int
-    converged : bool
-    stop_reason : str
-    settings, mesh : dict
-        Every setting of the run and the mesh definition, so it can be repeated.
-    layered : dict or None
-        The layered interpretation used or made alongside (layers.json content).
-    notes : list of str
-    tomo_version, created : str
-    """
-
-    x: np.ndarray
-    z: np.ndarray
-    velocity: np.ndarray
-    coverage: np.ndarray
-    start_velocity: np.ndarray
-    terrain_x: np.ndarray
-    terrain_z: np.ndarray
-    picks: dict
-    history: dict
-    iteration_models: list = field(default_factory=list)
-    chi2: float = float("nan")
-    rms_ms: float = float("nan")
-    iterations: int = 0
-    converged: bool = False
-    stop_reason: str = ""
-    settings: dict = field(default_factory=dict)
-    mesh: dict = field(default_factory=dict)
-    layered: dict | None = None
-    notes: list = field(default_factory=list)
-    tomo_version: str = __version__
-    created: str = ""
-
-    @property
-    def residual_ms(self):
-        """Observed minus computed time per pick, ms."""
-        return self.picks["observed_ms"] - self.picks["computed_ms"]
-
-
 def write_run(path, run):
     """Write a RunData to ``path`` atomically (temporary name, then rename)."""
     import h5py
 
-    created = run.created or _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+    created = run.created or _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
     with atomic_path(path) as tmp:
         with h5py.File(tmp, "w") as f:
             f.attrs["format"] = FORMAT
@@ -214,3 +154,17 @@ def read_run(path):
     if run.velocity.shape != (nz, nx) or run.coverage.shape != (nz, nx):
         raise InputError(f"run file model has shape {run.velocity.shape}, expected ({nz}, {nx})", path=path)
     return run
+
+
+class RunWriter:
+    """A checkpoint for :func:`tomo.tomography.inversion.invert`: writes each run it is
+    given to ``path`` (atomically, so an interrupted run keeps the last whole file)."""
+
+    def __init__(self, path):
+        self.path = Path(path)
+
+    def __call__(self, run):
+        write_run(self.path, run)
+
+    def __str__(self):
+        return str(self.path)

@@ -473,7 +473,7 @@ def _distinct(b1, b2, z):
 
 def check_branch_count(value, name="branches"):
     """Raise InputError naming ``name`` unless ``value`` is a branch count 1 to MAX_BRANCHES."""
-    from .errors import InputError
+    from ..core.errors import InputError
 
     if not 1 <= int(value) <= MAX_BRANCHES:
         raise InputError(f"{name} must be 1 to {MAX_BRANCHES}, got {value}", field=name.lstrip("-"))

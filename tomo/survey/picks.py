@@ -1,4 +1,4 @@
-"""Survey files: first-arrival picks, station layouts and ground elevation along the line.
+"""First-arrival picks and station layouts: the pick file and the ``Picks`` type.
 
 Pick file (CSV, UTF-8, header row, ``#`` comment lines allowed):
 
@@ -13,128 +13,22 @@ receiver_z     no        geophone elevation, m, up positive (default: on the gro
 sigma_ms       no        pick uncertainty (one standard deviation), ms
 =============  ========  =====================================================
 
-Terrain file (CSV ``x,z``, m): ground elevation along the line, linear between points.
-
 Inside tomo everything is SI: metres and seconds. Milliseconds exist only in files.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
-from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
-from .fileio import atomic_open, parse_float, read_csv_rows
+from ..core.errors import InputError
+from ..core.fileio import atomic_open, parse_float, read_csv_rows
 
-__all__ = ["Terrain", "Picks", "read_terrain", "read_picks", "write_picks", "flat_terrain"]
+__all__ = ["Picks", "read_picks", "write_picks", "check_picks"]
 
 #: A station may sit this far above the terrain (m) and is then put on it; more is an error.
 ABOVE_GROUND_TOLERANCE_M = 0.1
-
-
-@dataclass(frozen=True)
-class Terrain:
-    """Ground elevation along the line, linear between points.
-
-    Attributes
-    ----------
-    x : ndarray
-        Distances along the line, m, strictly increasing.
-    z : ndarray
-        Ground elevations, m, up positive.
-    path : str or None
-        File it came from, for messages.
-    """
-
-    x: np.ndarray
-    z: np.ndarray
-    path: str | None = None
-
-    def __post_init__(self):
-        x = np.asarray(self.x, dtype=float)
-        z = np.asarray(self.z, dtype=float)
-        if x.ndim != 1 or x.shape != z.shape or x.size < 2:
-            raise InputError("terrain needs at least two (x, z) points of equal count", path=self.path)
-        if not (np.all(np.isfinite(x)) and np.all(np.isfinite(z))):
-            raise InputError("terrain has a non-finite value", path=self.path)
-        if np.any(np.diff(x) <= 0):
-            raise InputError("terrain x must increase strictly", path=self.path)
-        object.__setattr__(self, "x", x)
-        object.__setattr__(self, "z", z)
-
-    @property
-    def x_range(self):
-        return float(self.x[0]), float(self.x[-1])
-
-    def covers(self, x, tol=1e-6):
-        """Return a boolean array: which ``x`` lie within the terrain's range."""
-        x = np.asarray(x, dtype=float)
-        return (x >= self.x[0] - tol) & (x <= self.x[-1] + tol)
-
-    def elevation(self, x, extrapolate=False):
-        """Ground elevation (m) at ``x`` (m), linear between points.
-
-        Outside the terrain's range this raises unless ``extrapolate`` is true, in which
-        case the end elevations continue flat (used only for padding a model grid).
-        """
-        x = np.asarray(x, dtype=float)
-        if not extrapolate and not np.all(self.covers(x)):
-            bad = np.atleast_1d(x)[~np.atleast_1d(self.covers(x))][0]
-            raise InputError(
-                f"x = {bad:g} m is outside the terrain ({self.x[0]:g} to {self.x[-1]:g} m)",
-                path=self.path,
-            )
-        return np.interp(x, self.x, self.z)
-
-    def max_elevation_near(self, x, half_width):
-        """Highest ground within ``half_width`` (m) of each ``x``, terrain vertices included."""
-        x = np.asarray(x, dtype=float)
-        best = np.maximum(
-            self.elevation(x, True),
-            np.maximum(self.elevation(x - half_width, True), self.elevation(x + half_width, True)),
-        )
-        for xv, zv in zip(self.x, self.z):
-            near = np.abs(x - xv) <= half_width
-            best = np.where(near, np.maximum(best, zv), best)
-        return best
-
-
-def flat_terrain(x_min, x_max, z=0.0):
-    """Flat ground at elevation ``z`` (m) from ``x_min`` to ``x_max`` (m)."""
-    return Terrain(np.array([float(x_min), float(x_max)]), np.array([float(z), float(z)]))
-
-
-def read_terrain(path):
-    """Read a terrain CSV file with columns ``x,z`` (m).
-
-    Raises
-    ------
-    InputError
-        If the file is missing, a column is missing, a value is not a number, or x does
-        not increase; the message names file, line and field.
-    """
-    header, rows = read_csv_rows(path)
-    for name in ("x", "z"):
-        if name not in header:
-            raise InputError(f"missing column '{name}' (header has: {', '.join(header)})", path=path, line=None)
-    ix, iz = header.index("x"), header.index("z")
-    xs, zs = [], []
-    previous = None
-    for lineno, fields in rows:
-        if len(fields) < len(header):
-            raise InputError(f"expected {len(header)} fields, got {len(fields)}", path=path, line=lineno)
-        x = parse_float(fields[ix], path, lineno, "x")
-        z = parse_float(fields[iz], path, lineno, "z")
-        if previous is not None and x <= previous:
-            raise InputError(f"x must increase along the file ({x:g} after {previous:g})", path=path, line=lineno, field="x")
-        previous = x
-        xs.append(x)
-        zs.append(z)
-    if len(xs) < 2:
-        raise InputError("terrain needs at least two points", path=path)
-    return Terrain(np.array(xs), np.array(zs), path=str(path))
 
 
 @dataclass

@@ -20,15 +20,15 @@ fallback is recorded.
 
 from __future__ import annotations
 
+import multiprocessing as mp
 import os
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 
-import multiprocessing as mp
 import numpy as np
 import skfmm
 
-from .errors import InputError, SolverError
+from ..core.errors import InputError, SolverError
 
 __all__ = ["solve_field", "sample_field", "travel_times", "ForwardResult", "DEFAULT_SOURCE_RADIUS"]
 

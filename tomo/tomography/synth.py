@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from .errors import InputError
+from ..survey.meshspec import read_mesh_spec
+from ..survey.model import read_model
+from ..survey.picks import read_picks, write_picks
+from ..survey.terrain import read_terrain
 from .forward import travel_times
-from .mesh import mesh_for_picks, read_mesh_spec
-from .model import read_model
-from .survey import read_picks, read_terrain, write_picks
+from .mesh import mesh_for_picks
 
 __all__ = ["synthesize", "synthetic_times"]
 

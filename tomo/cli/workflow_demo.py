@@ -1,9 +1,9 @@
-"""The demo: the whole workflow on the invented hillside line in the repository's ``demo/``.
+"""The demo: the whole workflow on the invented hillside line shipped in ``tomo/data/demo/``.
 
 ``run_demo(out_dir)`` runs, in order, ``tomo check``, ``tomo layers``, ``tomo invert``
 (from the layered start, then once more from the 1-D gradient start, to show how much
 of the section the picks decide), the figures of ``tomo plot`` (with the two runs
-compared) and ``tomo report`` on ``demo/picks.csv`` and ``demo/terrain.csv``, writing
+compared) and ``tomo report`` on the demo's ``picks.csv`` and ``terrain.csv``, writing
 everything into ``out_dir``. The check, layers and invert steps go through the command
 line (:func:`tomo.cli.main`), so the demo prints exactly what a user running those
 commands would see.
@@ -15,7 +15,7 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .errors import InputError, TomoError
+from ..core.errors import InputError, TomoError
 
 __all__ = ["demo_dir", "DEMO_FILES", "run_demo", "DemoResult"]
 
@@ -29,16 +29,15 @@ STEPS = 6
 
 
 def demo_dir():
-    """The repository's ``demo/`` folder (beside the ``tomo`` package, which is
-    installed editable); InputError naming the folder if its files are missing."""
-    import tomo
+    """The demo line's folder inside the installed package (``tomo/data/demo``, package
+    data read with :mod:`importlib.resources`); InputError naming the folder if its
+    files are missing (a broken installation)."""
+    from importlib.resources import files
 
-    folder = Path(tomo.__file__).resolve().parents[1] / "demo"
+    folder = Path(str(files("tomo") / "data" / "demo"))
     missing = [name for name in DEMO_FILES if not (folder / name).is_file()]
     if missing:
-        raise InputError(
-            f"demo file(s) missing: {', '.join(missing)} (the demo runs from a source checkout "
-            "installed with 'pip install -e .')", path=folder)
+        raise InputError(f"demo file(s) missing: {', '.join(missing)} (reinstall tomo)", path=folder)
     return folder
 
 
@@ -64,7 +63,7 @@ def _cli(argv, step, log=None, keep_stderr=False):
     import contextlib
     import sys
 
-    from .cli import main
+    from . import main
 
     if log is None:
         status = main(argv)
@@ -99,11 +98,11 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     -------
     DemoResult
     """
-    from .figures import style
-    from .figures.bundle import FigureSpec, make_figures, prepare_folder
-    from .figures.versus import CAPTION, run_labels, versus_figure, versus_summary, versus_table
-    from .report import write_report
-    from .runfile import read_run
+    from ..figures import style
+    from ..figures.bundle import FigureSpec, make_figures, prepare_folder
+    from ..figures.versus import CAPTION, run_labels, versus_figure, versus_summary, versus_table
+    from ..results.report import write_report
+    from ..results.runfile import read_run
 
     folder = demo_dir()
     out = prepare_folder(out_dir)
@@ -173,7 +172,7 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
 
 def _save_keep(fig, path):
     """Save a figure atomically without closing it (it is saved again as PDF)."""
-    from .fileio import atomic_path
+    from ..core.fileio import atomic_path
 
     with atomic_path(path) as tmp:
         fig.savefig(tmp, format=Path(path).suffix.lstrip("."), bbox_inches="tight")

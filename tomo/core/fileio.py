@@ -7,11 +7,12 @@ import csv
 import math
 import os
 import tempfile
+import tomllib
 from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float"]
+__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float", "read_toml", "check_output_path"]
 
 
 @contextlib.contextmanager
@@ -92,3 +93,33 @@ def parse_float(text, path, line, field):
     if not math.isfinite(value):
         raise InputError(f"expected a finite number, got {text!r}", path=path, line=line, field=field)
     return value
+
+
+def read_toml(path):
+    """Read a TOML file; InputError naming the file (and line) when it is missing or malformed."""
+    path = Path(path)
+    if not path.exists():
+        raise InputError("file does not exist", path=path)
+    try:
+        with open(path, "rb") as handle:
+            return tomllib.load(handle)
+    except tomllib.TOMLDecodeError as exc:
+        line = getattr(exc, "lineno", None)
+        message = getattr(exc, "msg", str(exc))
+        raise InputError(f"malformed TOML: {message}", path=path, line=line) from None
+    except UnicodeDecodeError:
+        raise InputError("not UTF-8 text", path=path) from None
+
+
+def check_output_path(path):
+    """Raise InputError unless ``path`` can be written (its folder exists and is writable,
+    and it is not itself a folder). Used to refuse a request before any output is made."""
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if path.is_dir():
+        raise InputError("is a folder, expected a file name", path=path)
+    if not folder.is_dir():
+        raise InputError("output folder does not exist", path=folder)
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise InputError("output folder is not writable", path=folder)
+    return path

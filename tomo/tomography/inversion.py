@@ -55,14 +55,14 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import lsmr, lsqr
 
-from . import __version__
-from .errors import InputError, SolverError, TomoError
+from ..core.errors import InputError, SolverError
+from ..core.version import __version__
 from .forward import DEFAULT_SOURCE_RADIUS, _map, node_speed, sample_field, solve_field
 from .rays import BOOKINGS, DEFAULT_BOOKING, DEFAULT_STEP, time_gradient, trace_many
-from .runfile import RunData, write_run
+from .run import RunData
 
-__all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert", "run_inversion",
-           "forward_pass", "trace_pass", "PassResult", "default_mesh_spec", "smoothness_operator", "MIN_PICKS",
+__all__ = ["InversionSettings", "IterationInfo", "InversionInterrupted", "invert",
+           "forward_pass", "trace_pass", "PassResult", "smoothness_operator", "MIN_PICKS",
            "MAX_CELLS_PER_PICK"]
 
 #: Fewer picks than this cannot support a tomogram (use the layered interpretation).
@@ -254,13 +254,13 @@ def _duration(seconds):
 
 class InversionInterrupted(KeyboardInterrupt):
     """Raised when an inversion is interrupted (Ctrl-C); ``run`` is the last finished
-    iteration (also in the run file when one was being written), ``message`` says so."""
+    iteration (also given to the checkpoint when there is one), ``message`` says so."""
 
-    def __init__(self, message, run=None, out_path=None):
+    def __init__(self, message, run=None, checkpoint=None):
         super().__init__(message)
         self.message = message
         self.run = run
-        self.out_path = out_path
+        self.checkpoint = checkpoint
 
 
 # --- forward solves and rays, in worker processes --------------------------------------
@@ -498,7 +498,7 @@ def _check_inputs(picks, mesh, start_velocity, settings):
     return v_min, v_max
 
 
-def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=None, layered=None,
+def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint=None, layered=None,
            notes=None, extra_settings=None, reference_velocity=None):
     """Invert first-arrival picks for a gridded velocity model (see module docstring).
 
@@ -516,8 +516,10 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         Called with an :class:`IterationInfo` after the starting model and after each
         finished iteration (``str(info)`` is a one-line summary). An exception raised
         in it stops the run; KeyboardInterrupt becomes :class:`InversionInterrupted`.
-    out_path : str or Path, optional
-        Run file (HDF5) rewritten atomically after every finished iteration.
+    checkpoint : callable, optional
+        Called with the :class:`RunData` of the starting model and of every finished
+        iteration, and of the last one again when the run is interrupted (e.g.
+        :class:`tomo.results.runfile.RunWriter`, which rewrites a run file atomically).
     layered : dict, optional
         Layered interpretation used for the start, stored in the run file.
     notes : list of str, optional
@@ -614,8 +616,8 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         if res.unfinished:
             run.notes.append(f"{res.unfinished} ray(s) did not reach their source and were closed straight")
         state["run"] = run
-        if out_path is not None:
-            write_run(out_path, run)
+        if checkpoint is not None:
+            checkpoint(run)
         return run
 
     def report(k, lam, step, t_iter):
@@ -799,17 +801,17 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, out_path=N
         n_done = 0 if last is None else last.iterations
         if last is not None:
             last.stop_reason = "interrupted"
-            if out_path is not None:
+            if checkpoint is not None:
                 try:
-                    write_run(out_path, last)  # atomic: a second Ctrl-C keeps the previous file
+                    checkpoint(last)  # a run file is written atomically: a second Ctrl-C keeps the previous one
                 except KeyboardInterrupt:
                     pass
-        if out_path is not None and last is not None:
-            message = (f"interrupted; {out_path} holds the last finished iteration "
+        if checkpoint is not None and last is not None:
+            message = (f"interrupted; {checkpoint} holds the last finished iteration "
                        f"({n_done} of {settings.max_iterations})")
         else:
             message = f"interrupted after {n_done} finished iteration(s); nothing was written"
-        raise InversionInterrupted(message, last, out_path) from None
+        raise InversionInterrupted(message, last, checkpoint) from None
     # not part of the run file: how the time was spent (benchmarks/invert.py prints it)
     run.timing = dict(timing, total_s=_time.perf_counter() - t_begin)
     return run
@@ -857,123 +859,3 @@ def _solve(A, b, R, rough, dev, lam, settings, x0=None):
     return u
 
 
-def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered", out_path="run.h5",
-                  progress=None, branches=None, start_smoothing=None, **settings):
-    """Read the files, build the mesh and starting model, invert, write the run file.
-
-    Parameters
-    ----------
-    picks_path : str or Path
-        Pick file (CSV).
-    terrain_path, mesh_path : str or Path, optional
-        Terrain file (CSV) and mesh spec (TOML); the mesh is otherwise chosen from the
-        survey (``tomo.mesh.mesh_for_picks``).
-    start : {"layered", "gradient"}
-        Starting model: from the layered interpretation (``tomo.layered``) or a 1-D
-        velocity-depth gradient fitted to the picks (``tomo.starting``).
-    out_path : str or Path
-        Run file, rewritten after every finished iteration.
-    progress : callable, optional
-        See :func:`invert`.
-    branches : int, optional
-        Travel-time branches on every side for the layered start
-        (``tomo.starting.layered_start``; default: chosen by the BIC).
-    start_smoothing : float, optional
-        Gaussian smoothing of the layered start, model cells (default
-        ``tomo.starting.LAYERED_SMOOTHING_CELLS``; 0: the sharp layers).
-    **settings
-        Fields of :class:`InversionSettings`.
-
-    Returns
-    -------
-    RunData
-    """
-    from .mesh import mesh_for_picks, read_mesh_spec
-    from .starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
-    from .survey import read_picks, read_terrain
-
-    try:
-        opts = InversionSettings.from_dict(settings).check()
-    except TypeError as exc:
-        raise InputError(f"bad setting: {exc}") from None
-    terrain = read_terrain(terrain_path) if terrain_path else None
-    picks = read_picks(picks_path, terrain=terrain)
-    notes = list(picks.notices)
-    if terrain is None:
-        terrain = _terrain_from_stations(picks)
-        if terrain is not None:
-            notes.append("no terrain file: the ground is drawn through the station elevations")
-    spec = default_mesh_spec(picks, read_mesh_spec(mesh_path) if mesh_path else None)
-    mesh, spec = mesh_for_picks(picks, terrain, spec)
-    layered = None
-    if start not in ("layered", "gradient"):
-        raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
-    if branches is not None:
-        from .branches import check_branch_count
-
-        if start != "layered":
-            raise InputError("branches apply to the layered start only", field="branches")
-        check_branch_count(branches)
-    if start_smoothing is not None and start != "layered":
-        raise InputError("start smoothing applies to the layered start only (the gradient start is smooth)",
-                         field="start_smoothing")
-    smoothing = LAYERED_SMOOTHING_CELLS if start_smoothing is None else check_smoothing(start_smoothing)
-    start_used = start
-    if start == "layered":
-        try:
-            velocity, layered = layered_start(picks, mesh, terrain, n_branches=branches, smooth_cells=smoothing)
-        except TomoError as exc:
-            # a line the layered methods cannot read still gets a tomogram, from the
-            # gradient start, with a note saying so
-            notes.append(f"layered starting model not available ({exc}); the gradient start was used")
-            start_used = "gradient"
-    if start_used == "gradient":
-        velocity, info = gradient_start(picks, mesh, return_fit=True)
-        notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
-                     f"fitted to the first arrivals")
-    extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
-             "start_smoothing_cells": smoothing if start_used == "layered" else None,
-             "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
-             "terrain_file": None if terrain_path is None else str(terrain_path),
-             "mesh_file": None if mesh_path is None else str(mesh_path)}
-    return invert(picks, mesh, velocity, opts, progress=progress, out_path=out_path, layered=layered,
-                  notes=notes, extra_settings=extra)
-
-
-def _terrain_from_stations(picks):
-    """Ground through the highest station at each distance (None when all are at z = 0).
-
-    Padded flat beyond the outermost stations so that the mesh padding has ground.
-    """
-    from .survey import Terrain
-
-    x = np.concatenate([picks.source_x, picks.receiver_x])
-    z = np.concatenate([picks.source_z, picks.receiver_z])
-    if np.all(np.abs(z) < 1e-9):
-        return None
-    key = np.round(x, 4)
-    ux = np.unique(key)
-    uz = np.array([z[key == v].max() for v in ux])
-    span = max(float(ux[-1] - ux[0]), 1.0)
-    ux = np.concatenate([[ux[0] - span], ux, [ux[-1] + span]])
-    uz = np.concatenate([[uz[0]], uz, [uz[-1]]])
-    return Terrain(ux, uz)
-
-
-def default_mesh_spec(picks, spec=None):
-    """Mesh spec for an inversion: model cells of half the station spacing (rounded down
-    to 1-2-5) unless ``spec`` sets ``cell_m``; the rest is left to
-    ``tomo.mesh.auto_mesh_spec``.
-
-    A tomogram cannot resolve much below the station spacing (common practice), so
-    cells of half of it keep the unknowns few while the forward grid (``refine`` node
-    intervals per cell) keeps the travel times accurate.
-    """
-    from dataclasses import replace as _replace
-
-    from .mesh import MeshSpec, _nice, station_spacing
-
-    spec = spec or MeshSpec()
-    if spec.cell_m is None:
-        spec = _replace(spec, cell_m=_nice(max(station_spacing(picks), 1e-3) / 2.0))
-    return spec

@@ -13,123 +13,24 @@ node spacing of the highest ground nearby stay in, carrying the velocity of the 
 below them, so that every station on or below the ground has four unmasked nodes
 around it and its time can be interpolated from solved values only.
 
-Mesh spec (TOML), every key optional::
-
-    cell_m = 0.5       # model cell size, m
-    depth_m = 30.0     # depth of the grid below the lowest ground, m
-    padding_m = 5.0    # grid extension beyond the outermost stations, m
-    refine = 2         # forward node intervals per model cell (integer >= 1)
+How fine and deep the grid is comes from a mesh spec (:mod:`tomo.survey.meshspec`).
 """
 
 from __future__ import annotations
 
 import math
-import tomllib
 from dataclasses import dataclass
 from functools import cached_property
-from pathlib import Path
 
 import numpy as np
 import scipy.sparse as sp
 
-from .errors import InputError
-from .survey import Terrain, flat_terrain
+from ..core.errors import InputError
+from ..survey.geometry import station_spacing
+from ..survey.meshspec import auto_mesh_spec
+from ..survey.terrain import Terrain, flat_terrain
 
-__all__ = ["Mesh", "MeshSpec", "read_mesh_spec", "auto_mesh_spec", "build_mesh", "mesh_for_picks",
-           "station_spacing"]
-
-
-@dataclass(frozen=True)
-class MeshSpec:
-    """How to build a mesh; ``None`` fields are chosen from the survey."""
-
-    cell_m: float | None = None
-    depth_m: float | None = None
-    padding_m: float | None = None
-    refine: int | None = None
-
-    def as_dict(self):
-        return {"cell_m": self.cell_m, "depth_m": self.depth_m, "padding_m": self.padding_m, "refine": self.refine}
-
-
-_SPEC_KEYS = {"cell_m": float, "depth_m": float, "padding_m": float, "refine": int}
-
-
-def read_mesh_spec(path):
-    """Read a mesh spec TOML file; unknown keys and bad values are an InputError."""
-    data = _read_toml(path)
-    values = {}
-    for key, value in data.items():
-        if key not in _SPEC_KEYS:
-            raise InputError(f"unknown key (expected one of {', '.join(_SPEC_KEYS)})", path=path, field=key)
-        kind = _SPEC_KEYS[key]
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or (kind is int and not isinstance(value, int)):
-            raise InputError(f"expected {'an integer' if kind is int else 'a number'}, got {value!r}", path=path, field=key)
-        if not math.isfinite(value) or value <= 0:
-            raise InputError(f"must be positive, got {value!r}", path=path, field=key)
-        values[key] = kind(value)
-    if values.get("refine", 1) > 16:
-        raise InputError(f"refine {values['refine']} is excessive (at most 16)", path=path, field="refine")
-    return MeshSpec(**values)
-
-
-def _read_toml(path):
-    path = Path(path)
-    if not path.exists():
-        raise InputError("file does not exist", path=path)
-    try:
-        with open(path, "rb") as handle:
-            return tomllib.load(handle)
-    except tomllib.TOMLDecodeError as exc:
-        line = getattr(exc, "lineno", None)
-        message = getattr(exc, "msg", str(exc))
-        raise InputError(f"malformed TOML: {message}", path=path, line=line) from None
-    except UnicodeDecodeError:
-        raise InputError("not UTF-8 text", path=path) from None
-
-
-def _nice(value):
-    """Round down to 1, 2 or 5 times a power of ten (for cell sizes people can read)."""
-    exponent = math.floor(math.log10(value))
-    for mantissa in (5, 2, 1):
-        candidate = mantissa * 10.0**exponent
-        if candidate <= value * (1 + 1e-9):
-            return candidate
-    return 10.0**exponent
-
-
-def station_spacing(picks):
-    """Median geophone spacing (m); from shots and geophones together when there are
-    fewer than three geophones (a line recorded the other way round)."""
-    xs = np.unique(np.round(picks.receiver_x, 4))
-    if xs.size < 3:
-        xs = np.unique(np.round(np.concatenate([picks.source_x, picks.receiver_x]), 4))
-    spacing = float(np.median(np.diff(xs))) if xs.size > 1 else 1.0
-    return spacing if spacing > 0 else 1.0
-
-
-def auto_mesh_spec(spacing, max_offset, spec=None):
-    """Fill the unset fields of ``spec`` from the survey's station ``spacing`` (m; see
-    :func:`station_spacing`) and longest offset (m).
-
-    Defaults (common practice, rules of thumb):
-
-    - cell = a quarter of the station spacing, rounded down to 1-2-5;
-    - depth = a third of the longest offset below the lowest ground (a refraction
-      survey rarely sees deeper than a quarter to a third of its longest offset);
-    - padding = two station spacings beyond the outermost stations;
-    - refine = 3 forward node intervals per model cell (measured: at a quarter of
-      the spacing per cell, refine 2 misses the 1 % target for head waves, 3 meets it;
-      see tests/test_forward.py and benchmarks/forward.py).
-    """
-    spec = spec or MeshSpec()
-    if not spacing > 0:
-        spacing = 1.0
-    cell = spec.cell_m or _nice(spacing / 4.0)
-    depth = spec.depth_m or max(max_offset / 3.0, 10 * cell)
-    padding = spec.padding_m if spec.padding_m is not None else 2.0 * spacing
-    refine = spec.refine or 3
-    return MeshSpec(cell_m=cell, depth_m=depth, padding_m=padding, refine=refine)
+__all__ = ["Mesh", "build_mesh", "mesh_for_picks"]
 
 
 @dataclass(frozen=True, eq=False)

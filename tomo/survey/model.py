@@ -20,14 +20,14 @@ Depths are vertical, below the ground surface at the same x.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 from matplotlib.path import Path as PolygonPath
 
-from .errors import InputError
-from .mesh import _read_toml
-from .survey import Terrain
+from ..core.errors import InputError
+from ..core.fileio import read_toml as _read_toml
+from .terrain import Terrain
 
 __all__ = ["Layer", "Body", "Model", "read_model"]
 
@@ -150,7 +150,7 @@ def read_model(path):
     path = str(path)
     unknown = set(data) - {"layer", "body", "terrain"}
     if unknown:
-        raise InputError(f"unknown table (expected layer, body, terrain)", path=path, field=sorted(unknown)[0])
+        raise InputError("unknown table (expected layer, body, terrain)", path=path, field=sorted(unknown)[0])
     raw_layers = data.get("layer")
     if not isinstance(raw_layers, list) or not raw_layers:
         raise InputError("needs at least one [[layer]]", path=path, field="layer")

@@ -42,275 +42,16 @@ by a licensed professional under local codes.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 
 import numpy as np
 
-from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, OUTLIER_SIGMA, SideFit, fit_shots, pick_sigma
-from .errors import InputError
+from ..core.errors import InputError
+from .branches import DEFAULT_SIGMA_MS, MAX_BRANCHES, OUTLIER_SIGMA, fit_shots, pick_sigma
+from .delay import delay_time_profile
+from .formulas import cos_term, dipping_refractor, hidden_layer_thickness, intercept_thicknesses
+from .result import LayeredResult
 
-__all__ = [
-    "intercept_thicknesses", "intercept_times", "crossover_distances", "critical_distances",
-    "dipping_refractor", "hidden_layer_thickness", "interpret_line", "starting_model",
-    "interface_depths", "LayeredResult", "CAUTIONS", "json_safe",
-]
-
-CAUTIONS = [
-    "Layered refraction methods assume velocity increases with depth; a layer slower than "
-    "the one above it (velocity inversion) gives no first arrivals and the depths below it "
-    "come out too deep.",
-    "A layer too thin to give first arrivals of its own (hidden layer) does not show on the "
-    "travel-time curves; its presence makes the computed depths too shallow.",
-    "The interpretation is not unique: other models fit the same times.",
-    "Velocities do not identify rock types (ranges of materials overlap); calibrate against "
-    "boreholes or test pits.",
-    "Engineering designs based on these results need review by a licensed professional "
-    "under local codes.",
-]
-
-
-# --- closed-form layer formulas -------------------------------------------------
-
-def _cos_term(v_i, v_n):
-    """sqrt(V_n^2 - V_i^2) / (V_i V_n) = cos(theta_in) / V_i, s/m."""
-    return math.sqrt(max(v_n * v_n - v_i * v_i, 0.0)) / (v_i * v_n)
-
-
-def intercept_times(velocities_m_s, thicknesses_m):
-    """Intercept times (s) of the head waves of layers 2..n over horizontal layers.
-
-    ``t_n = sum_{i<n} 2 h_i sqrt(V_n^2 - V_i^2) / (V_i V_n)`` (Telford et al. 1990, sec. 4.3).
-
-    Parameters
-    ----------
-    velocities_m_s : sequence of float, length n
-        Layer velocities top to bottom, m/s, increasing.
-    thicknesses_m : sequence of float, length n-1
-        Thicknesses of the layers above the last, m.
-    """
-    v = [float(x) for x in velocities_m_s]
-    h = [float(x) for x in thicknesses_m]
-    return np.array([sum(2 * h[i] * _cos_term(v[i], v[n]) for i in range(n)) for n in range(1, len(v))])
-
-
-def intercept_thicknesses(velocities_m_s, intercepts_s):
-    """Thicknesses (m) of layers 1..n-1 from the intercept times of layers 2..n.
-
-    Inverts :func:`intercept_times` layer by layer:
-    ``h_{n-1} = (t_n - sum_{i<n-1} 2 h_i cos(theta_in)/V_i) V_{n-1} V_n / (2 sqrt(V_n^2 - V_{n-1}^2))``.
-
-    Parameters
-    ----------
-    velocities_m_s : sequence of float, length n
-    intercepts_s : sequence of float, length n-1
-        Intercept time of the branch of layer k (k = 2..n), s.
-
-    Returns
-    -------
-    ndarray, length n-1
-        NaN for a layer whose velocity does not increase downward.
-    """
-    v = [float(x) for x in velocities_m_s]
-    t = [float(x) for x in intercepts_s]
-    if len(t) != len(v) - 1:
-        raise InputError(f"need {len(v) - 1} intercept times for {len(v)} velocities, got {len(t)}")
-    h = []
-    for n in range(1, len(v)):
-        if not v[n] > v[n - 1]:
-            h.append(float("nan"))
-            continue
-        above = sum(2 * h[i] * _cos_term(v[i], v[n]) for i in range(n - 1) if math.isfinite(h[i]))
-        h.append((t[n - 1] - above) / (2 * _cos_term(v[n - 1], v[n])))
-    return np.array(h)
-
-
-def crossover_distances(velocities_m_s, thicknesses_m):
-    """Offsets (m) where branch k+1 overtakes branch k over horizontal layers.
-
-    ``x_c = (t_{k+1} - t_k) / (1/V_k - 1/V_{k+1})``; for two layers this is
-    ``2H sqrt((V2+V1)/(V2-V1))`` (Telford et al. 1990, sec. 4.3).
-    """
-    v = np.asarray(velocities_m_s, float)
-    t = np.concatenate([[0.0], intercept_times(v, thicknesses_m)])
-    return (t[1:] - t[:-1]) / (1 / v[:-1] - 1 / v[1:])
-
-
-def critical_distances(velocities_m_s, thicknesses_m):
-    """Critical distances (m): nearest offset at which each head wave exists.
-
-    ``x_crit,n = sum_{i<n} 2 h_i tan(theta_in)``, ``sin(theta_in) = V_i/V_n``; for two
-    layers ``2H tan(theta_c)`` (Telford et al. 1990, sec. 4.3).
-    """
-    v = [float(x) for x in velocities_m_s]
-    h = [float(x) for x in thicknesses_m]
-    out = []
-    for n in range(1, len(v)):
-        total = 0.0
-        for i in range(n):
-            s = v[i] / v[n]
-            total += 2 * h[i] * s / math.sqrt(1 - s * s)
-        out.append(total)
-    return np.array(out)
-
-
-def dipping_refractor(v1_m_s, apparent_down_m_s, apparent_up_m_s, intercept_down_s=None,
-                      intercept_up_s=None):
-    """True velocity, dip and depths of a plane dipping refractor from reversed shots.
-
-    Parameters
-    ----------
-    v1_m_s : float
-        Velocity of the first layer, m/s.
-    apparent_down_m_s, apparent_up_m_s : float
-        Apparent velocities shooting down-dip (slower) and up-dip, m/s. If the "down"
-        one is faster the dip comes out negative (the refractor rises that way).
-    intercept_down_s, intercept_up_s : float, optional
-        Intercept times of the two branches, s.
-
-    Returns
-    -------
-    dict
-        ``velocity_m_s``, ``dip_deg`` (positive: deepening in the down-dip shooting
-        direction), ``critical_angle_deg`` and, with intercepts, ``perpendicular_depth_down_m``,
-        ``perpendicular_depth_up_m`` (under the down-dip and up-dip shots) and the vertical
-        depths ``vertical_depth_*_m = perpendicular / cos(dip)``.
-
-    Notes
-    -----
-    ``dip = (asin(V1/a_d) - asin(V1/a_u))/2``, ``theta_c = (asin(V1/a_d) + asin(V1/a_u))/2``,
-    ``V2 = V1 / sin(theta_c)``, ``h = t_i V1 / (2 cos(theta_c))`` (Telford, Geldart &
-    Sheriff 1990, sec. 4.3.3, from memory).
-    """
-    v1 = float(v1_m_s)
-    ad, au = float(apparent_down_m_s), float(apparent_up_m_s)
-    if not (ad > v1 and au > v1):
-        raise InputError(f"apparent velocities ({ad:.0f}, {au:.0f} m/s) must exceed the top-layer velocity ({v1:.0f} m/s)")
-    ed, eu = math.asin(v1 / ad), math.asin(v1 / au)
-    dip = 0.5 * (ed - eu)
-    theta = 0.5 * (ed + eu)
-    out = {"velocity_m_s": v1 / math.sin(theta), "dip_deg": math.degrees(dip),
-           "critical_angle_deg": math.degrees(theta)}
-    for name, ti in (("down", intercept_down_s), ("up", intercept_up_s)):
-        if ti is not None:
-            h = float(ti) * v1 / (2 * math.cos(theta))
-            out[f"perpendicular_depth_{name}_m"] = h
-            out[f"vertical_depth_{name}_m"] = h / math.cos(dip)
-    return out
-
-
-def hidden_layer_thickness(spacing_m, v_top_m_s, v_below_m_s):
-    """Rough thickness (m) below which a layer gives no first arrivals of its own.
-
-    ``spacing / sqrt((Vn - V1)/(Vn + V1))`` — a rule of thumb (common practice): such a
-    layer's branch would span less than about one geophone spacing.
-    """
-    return float(spacing_m) / math.sqrt((v_below_m_s - v_top_m_s) / (v_below_m_s + v_top_m_s))
-
-
-# --- line interpretation -------------------------------------------------------
-
-@dataclass
-class LayeredResult:
-    """A line's layered interpretation (the content of ``layers.json``).
-
-    Attributes
-    ----------
-    layers : list of dict
-        Top to bottom: ``velocity_m_s``, ``thickness_m`` (None for the last layer),
-        ``depth_top_m``, ``velocity_sigma_m_s``, ``thickness_sigma_m``, ``reversed``
-        (refractor seen from both directions), ``n_sides`` (shot sides that saw it),
-        ``lateral_change`` (its top changes along the line: a break fixed in place was
-        merged, or the branches shooting one way are not parallel; the velocity is then
-        from the minus times where those are reliable, the branch one kept as
-        ``branch_velocity_m_s``).
-    sides : list of SideFit
-        Branch fits per shot side.
-    layer_of_branch : list of list of int
-        For each side, the line layer (1-based) of each branch; 0 when unmatched.
-    shot_depths : list of dict
-        Per shot side: ``shot_x``, ``side``, ``depths_m`` {layer k: depth of the top of
-        layer k below the shot, m} from the intercept times.
-    dips : list of dict
-        Per reversed pair and refractor: shots, apparent velocities, true velocity, dip.
-    profile : RefractorProfile or None
-        Delay-time refractor depths under the geophones (:mod:`tomo.delay`).
-    warnings, messages : list of str
-        Warnings about the interpretation; per-shot problems with the input.
-    cautions : list of str
-    options : dict
-        Settings used.
-    """
-
-    layers: list
-    sides: list
-    layer_of_branch: list
-    shot_depths: list = field(default_factory=list)
-    dips: list = field(default_factory=list)
-    profile: object = None
-    warnings: list = field(default_factory=list)
-    messages: list = field(default_factory=list)
-    cautions: list = field(default_factory=lambda: list(CAUTIONS))
-    options: dict = field(default_factory=dict)
-
-    @property
-    def velocities_m_s(self):
-        return np.array([lay["velocity_m_s"] for lay in self.layers])
-
-    @property
-    def thicknesses_m(self):
-        return np.array([np.nan if lay["thickness_m"] is None else lay["thickness_m"] for lay in self.layers[:-1]])
-
-    def to_dict(self):
-        """Plain JSON-ready content (NaN and infinities become None)."""
-        return json_safe(self._to_dict())
-
-    def _to_dict(self):
-        sides = []
-        for fit, layers in zip(self.sides, self.layer_of_branch):
-            d = fit.to_dict()
-            d["layer_of_branch"] = [int(k) for k in layers]
-            sides.append(d)
-        return {
-            "layers": [dict(lay) for lay in self.layers],
-            "shots": sides,
-            "shot_depths": [dict(s, depths_m={str(k): v for k, v in s["depths_m"].items()}) for s in self.shot_depths],
-            "dips": [dict(d) for d in self.dips],
-            "delay_time_profile": None if self.profile is None else self.profile.to_dict(),
-            "warnings": list(self.warnings),
-            "messages": list(self.messages),
-            "cautions": list(self.cautions),
-            "options": dict(self.options),
-        }
-
-    @classmethod
-    def from_dict(cls, d):
-        from .delay import RefractorProfile
-
-        sides = [SideFit.from_dict(s) for s in d.get("shots", [])]
-        layer_of_branch = [list(s.get("layer_of_branch", [])) for s in d.get("shots", [])]
-        shot_depths = [dict(s, depths_m={int(k): v for k, v in s["depths_m"].items()}) for s in d.get("shot_depths", [])]
-        prof = d.get("delay_time_profile")
-        return cls(
-            layers=[dict(lay) for lay in d["layers"]], sides=sides, layer_of_branch=layer_of_branch,
-            shot_depths=shot_depths, dips=[dict(x) for x in d.get("dips", [])],
-            profile=None if prof is None else RefractorProfile.from_dict(prof),
-            warnings=list(d.get("warnings", [])), messages=list(d.get("messages", [])),
-            cautions=list(d.get("cautions", CAUTIONS)), options=dict(d.get("options", {})),
-        )
-
-
-def json_safe(value):
-    """A copy of nested dicts/lists with NaN and infinities as None (JSON has neither)."""
-    if isinstance(value, (float, np.floating)):
-        value = float(value)
-        return value if math.isfinite(value) else None
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, dict):
-        return {k: json_safe(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [json_safe(v) for v in value]
-    return value
+__all__ = ["interpret_line"]
 
 
 #: Largest slope of the difference of two shots' head-wave times, as a fraction of the
@@ -892,7 +633,7 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                     # weight by the intercept's variance: a short branch has a poor intercept
                     b = branch_of(f, lob, k)
                     sig_t = intercept_override.get((i, k), (None, b.intercept_sigma_s))[1]
-                    sig_h = sig_t / (2 * _cos_term(velocities[k - 2], velocities[k - 1]))
+                    sig_h = sig_t / (2 * cos_term(velocities[k - 2], velocities[k - 1]))
                     weight = 1.0 / sig_h**2 if math.isfinite(sig_h) and sig_h > 0 else 1.0
                     per_layer[k - 2].append((float(hk), weight))
                 prev = k
@@ -940,8 +681,6 @@ def interpret_line(picks, terrain=None, *, n_branches=None, breaks_m=None, sigma
                            shot_depths=shot_depths, dips=dips, warnings=warnings, messages=messages,
                            options=options)
     if delay_times and n_layers > 1:
-        from .delay import delay_time_profile
-
         result.profile = delay_time_profile(picks, result, terrain=terrain, grm=grm, grm_xy_m=grm_xy_m)
         # Over a refractor that changes along the line (a merged lateral break) the branch
         # slopes mix up-dip and down-dip stretches; the minus-time velocity of the delay-time
@@ -978,61 +717,4 @@ def _spacing(picks):
 
 # --- starting model --------------------------------------------------------------
 
-def interface_depths(result, x):
-    """Depth (m, below ground) of the top of each layer 2..n at distances ``x`` (m).
 
-    The delay-time (plus-minus) refractor where the profile covers ``x``, the intercept-time depths
-    under the shots (linear between shots, constant beyond) elsewhere, the line-wide
-    table where neither exists. Returns an array (n_layers - 1, x.size),
-    non-decreasing downward.
-    """
-    x = np.atleast_1d(np.asarray(x, float))
-    n = len(result.layers)
-    out = np.empty((n - 1, x.size))
-    for k in range(2, n + 1):
-        default = result.layers[k - 1]["depth_top_m"]
-        pts = {}
-        for s in result.shot_depths:
-            if k in s["depths_m"] and math.isfinite(s["depths_m"][k]):
-                pts.setdefault(round(s["shot_x"], 4), []).append(s["depths_m"][k])
-        if pts:
-            xs = np.array(sorted(pts))
-            ds = np.array([np.mean(pts[v]) for v in xs])
-            d = np.interp(x, xs, ds)
-        else:
-            d = np.full(x.size, default)
-        prof = result.profile
-        if prof is not None:
-            # the plus-minus depths, as in the refractor CSV file (GRM only where no plus-minus)
-            px, pd = prof.refractor_depths(k - 1)
-            if px.size >= 2:
-                inside = (x >= px.min()) & (x <= px.max())
-                d = np.where(inside, np.interp(x, px, pd), d)
-            elif px.size == 1:
-                d = np.where(np.abs(x - px[0]) < 1e-9, pd[0], d)
-        out[k - 2] = d
-    out = np.maximum.accumulate(np.maximum(out, 0.0), axis=0) if n > 1 else out
-    return out
-
-
-def starting_model(result, mesh):
-    """A velocity grid (m/s) on ``mesh`` from a layered interpretation.
-
-    Layer velocities of the line table; layer tops from the delay-time refractor where
-    known and from the intercept-time depths elsewhere (:func:`interface_depths`).
-    Depths are below the ground of the mesh's terrain.
-
-    Returns
-    -------
-    ndarray, shape (mesh.nz, mesh.nx)
-        Velocity, m/s; NaN in the air.
-    """
-    v = np.array([lay["velocity_m_s"] for lay in result.layers], float)
-    depth = mesh.depth
-    out = np.full(mesh.shape, v[0])
-    if v.size > 1:
-        tops = interface_depths(result, mesh.x)  # (n-1, nx)
-        for k in range(1, v.size):
-            out = np.where(depth >= tops[k - 1][None, :], v[k], out)
-    out[~mesh.ground] = np.nan
-    return out

@@ -1,0 +1,75 @@
+"""What an inversion returns: ``RunData``, the record of one run (model, fit, settings).
+
+The record is plain numpy arrays and Python values; the run file
+(:mod:`tomo.results.runfile`) stores exactly this content.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..core.version import __version__
+
+__all__ = ["RunData"]
+
+
+@dataclass
+class RunData:
+    """Everything in a run file, as numpy arrays and plain Python values.
+
+    Attributes
+    ----------
+    x, z : ndarray
+        Cell-centre distance (nx) and elevation (nz), m.
+    velocity, coverage, start_velocity : ndarray (nz, nx)
+        Final model (m/s, NaN in air), ray length per cell (m), starting model (m/s).
+    terrain_x, terrain_z : ndarray
+        Ground elevation points, m.
+    picks : dict of str -> ndarray
+        ``source_x, source_z, receiver_x, receiver_z`` (m) and ``observed_ms,
+        computed_ms, sigma_ms`` (ms), one value per pick.
+    history : dict of str -> ndarray
+        ``chi2, rms_ms, lambda, step`` per iteration, entry 0 for the starting model.
+    iteration_models : list of ndarray (nz, nx)
+        Model after each finished iteration, m/s.
+    chi2, rms_ms : float
+        Final weighted misfit (mean of (residual / sigma)^2) and RMS residual, ms.
+    iterations : int
+    converged : bool
+    stop_reason : str
+    settings, mesh : dict
+        Every setting of the run and the mesh definition, so it can be repeated.
+    layered : dict or None
+        The layered interpretation used or made alongside (layers.json content).
+    notes : list of str
+    tomo_version, created : str
+    """
+
+    x: np.ndarray
+    z: np.ndarray
+    velocity: np.ndarray
+    coverage: np.ndarray
+    start_velocity: np.ndarray
+    terrain_x: np.ndarray
+    terrain_z: np.ndarray
+    picks: dict
+    history: dict
+    iteration_models: list = field(default_factory=list)
+    chi2: float = float("nan")
+    rms_ms: float = float("nan")
+    iterations: int = 0
+    converged: bool = False
+    stop_reason: str = ""
+    settings: dict = field(default_factory=dict)
+    mesh: dict = field(default_factory=dict)
+    layered: dict | None = None
+    notes: list = field(default_factory=list)
+    tomo_version: str = __version__
+    created: str = ""
+
+    @property
+    def residual_ms(self):
+        """Observed minus computed time per pick, ms."""
+        return self.picks["observed_ms"] - self.picks["computed_ms"]
