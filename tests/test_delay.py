@@ -193,9 +193,9 @@ def test_trough_in_the_refractor_is_one_refractor():
     picks = layout.with_times(times + np.random.default_rng(2).normal(0.0, 2e-4, times.size), 2e-4)
     result = interpret_line(picks, terrain=terrain)
     assert len(result.layers) == 2
-    assert result.layers[1]["lateral_change"]
-    assert any("stays at one place along the line" in w for w in result.warnings)
-    assert result.layers[1]["velocity_m_s"] == pytest.approx(2500.0, rel=0.03)
+    assert result.layers[1].lateral_change
+    assert any(w.code == "break-fixed-in-place" for w in result.warnings)
+    assert result.layers[1].velocity_m_s == pytest.approx(2500.0, rel=0.03)
     x, depth = result.profile.refractor_depths(1)
     true = np.interp(x, base[:, 0], base[:, 1])
     assert x.size >= 40
@@ -208,7 +208,7 @@ def test_trough_in_the_refractor_is_one_refractor():
 
     grid = build_mesh(-13.0, 107.0, terrain, cell=0.5, depth=16.0)
     v = starting_model(result, grid)
-    v2 = result.layers[1]["velocity_m_s"]
+    v2 = result.layers[1].velocity_m_s
     for xq in (20.0, 55.0, 90.0):
         col = int(np.argmin(np.abs(grid.x - xq)))
         top = np.interp(xq, x, depth)

@@ -136,7 +136,7 @@ def run(args):
         note(message)
     result = interpret_line(picks, terrain=terrain, **options)
     for message in result.messages:
-        note(message)
+        note(message.message)
     # outputs first, so that a closed stdout cannot lose them
     written = []
     if args.out:
@@ -165,27 +165,26 @@ def run(args):
         written.append(f"wrote {args.figure}")
     print("layer  velocity (m/s)  thickness (m)  depth to top (m)  reversed")
     for k, lay in enumerate(result.layers, start=1):
-        h = "-" if lay["thickness_m"] is None else f"{lay['thickness_m']:.2f}"
-        rev = {None: "-", True: "yes", False: "NO"}[lay["reversed"]]
-        print(f"{k:5d}  {lay['velocity_m_s']:14.0f}  {h:>13}  {lay['depth_top_m']:16.2f}  {rev:>8}")
-    for k in sorted({d["layer"] for d in result.dips}):
-        pairs = [d for d in result.dips if d["layer"] == k]
+        h = "-" if lay.thickness_m is None else f"{lay.thickness_m:.2f}"
+        rev = {None: "-", True: "yes", False: "NO"}[lay.reversed]
+        print(f"{k:5d}  {lay.velocity_m_s:14.0f}  {h:>13}  {lay.depth_top_m:16.2f}  {rev:>8}")
+    for k in sorted({d.layer for d in result.dips}):
+        pairs = [d for d in result.dips if d.layer == k]
         if len(pairs) == 1:
             d = pairs[0]
-            print(f"layer {k} between shots {d['shot_left_x']:g} and {d['shot_right_x']:g} m: "
-                  f"{d['velocity_m_s']:.0f} m/s, dip {d['dip_deg']:+.1f} deg (positive: deepening to larger x)")
+            print(f"layer {k} between shots {d.shot_left_x:g} and {d.shot_right_x:g} m: "
+                  f"{d.velocity_m_s:.0f} m/s, dip {d.dip_deg:+.1f} deg (positive: deepening to larger x)")
         else:
-            v = [d["velocity_m_s"] for d in pairs]
-            dip = [d["dip_deg"] for d in pairs]
+            v = [d.velocity_m_s for d in pairs]
+            dip = [d.dip_deg for d in pairs]
             print(f"layer {k} from {len(pairs)} reversed pairs: {min(v):.0f} to {max(v):.0f} m/s, dip "
                   f"{min(dip):+.1f} to {max(dip):+.1f} deg (positive: deepening to larger x; each pair in --out)")
-    if result.profile is not None and len(result.profile):
-        for j in sorted(set(int(r) for r in result.profile.refractor)):
-            x, depth = result.profile.refractor_depths(j)
-            print(f"refractor {j} (delay times): {x.size} geophones from {x.min():g} to {x.max():g} m, "
-                  f"depth {depth.min():.2f} to {depth.max():.2f} m")
+    for j in result.refractors:
+        line = result.refractor(j)
+        print(f"refractor {j} (delay times): {line.x.size} geophones from {line.x.min():g} to {line.x.max():g} m, "
+              f"depth {line.depth_m.min():.2f} to {line.depth_m.max():.2f} m")
     for w in result.warnings:
-        print(f"warning: {w}")
+        print(f"warning: {w.message}")
     for c in result.cautions:
         print(f"caution: {c}")
     for line in written:

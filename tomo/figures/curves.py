@@ -134,7 +134,7 @@ def branches_figure(result, path, picks=None, max_columns=3):
     from matplotlib.lines import Line2D
 
     handles = [Line2D([], [], color=layer_colours[k % len(layer_colours)], lw=1.4,
-                      label=f"layer {k + 1} ({lay['velocity_m_s']:.0f} m/s)") for k, lay in enumerate(result.layers)]
+                      label=f"layer {k + 1} ({lay.velocity_m_s:.0f} m/s)") for k, lay in enumerate(result.layers)]
     handles += [Line2D([], [], ls="none", marker="o", mfc="none", color=style.GREY, ms=4, label="picks"),
                 Line2D([], [], ls="none", marker="D", mfc="white", color=style.BLACK, ms=4, label="crossover")]
     if any(0 in lob for lob in result.layer_of_branch):

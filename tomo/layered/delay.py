@@ -18,7 +18,7 @@ reciprocal time between the shots:
 A time-depth ``T`` over layers of velocity ``V_i`` above a refractor of velocity ``V_n``
 is ``T = sum_i h_i sqrt(V_n^2 - V_i^2)/(V_i V_n)``; the deepest unknown thickness follows
 with the shallower ones taken from the refractor above (where profiled) or the
-intercept-time depths (:mod:`tomo.layered`). The depth is measured below the geophone
+intercept-time depths (:mod:`tomo.layered.thickness`). The depth is measured below the geophone
 and is strictly the distance to the refractor along its normal; for a refractor dipping
 by ``d`` a vertical depth differs by a factor ``1/cos d`` (1.5 % at 10 deg), which we
 neglect.
@@ -44,15 +44,20 @@ depth; it says nothing about hidden layers or velocity inversions, which bias de
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..core.errors import InputError
+from ..survey.geometry import station_spacing
 from .branches import pick_sigma
+from .codes import notice
 from .profile import COLUMNS, RefractorProfile
 from .result import interface_depths
 
-__all__ = ["delay_time_profile", "depth_from_time_depth", "plus_minus_times", "grm_times", "grm_xy_scan"]
+__all__ = ["delay_time_profile", "depth_from_time_depth", "plus_minus_times", "grm_times", "grm_xy_scan",
+           "head_waves", "HeadWaves", "PairTimes", "reversed_pair_times", "match_reciprocal_times",
+           "pooled_velocity"]
 
 #: Reversed geophones (distinct) a minus-time velocity needs to overrule the line velocity
 #: (common practice: a slope from a handful of points cannot be checked).
@@ -163,6 +168,205 @@ def _interp_fn(xs, ts):
     return f
 
 
+@dataclass
+class HeadWaves:
+    """The head-wave picks of one shot side on one refractor.
+
+    ``branch`` is the side's farthest branch on the refractor (it stands for the side
+    near the other shot); ``x_m`` the geophone positions (rounded to the mm), ``time_s``
+    and ``sigma_s`` the picks and their sigmas.
+    """
+
+    branch: object
+    x_m: np.ndarray
+    time_s: np.ndarray
+    sigma_s: np.ndarray
+
+
+def head_waves(fit, layer_of_branch, k, sigma_s):
+    """The picks of a side on the top of layer k (:class:`HeadWaves`), or None.
+
+    Every branch of the side on this refractor counts (two or more where a lateral
+    change split it). Near the crossover a pick may as well be the arrival from the
+    layer above: only picks clearly (two sigmas) earlier than the branch above would
+    give there are kept (common practice: crossover picks are ambiguous).
+    """
+    mine = [b for b, layer in zip(fit.branches, layer_of_branch) if layer == k]
+    if not mine:
+        return None
+    sel = np.isin(fit.branch_of_pick, [b.index for b in mine])
+    above = [b for b, layer in zip(fit.branches, layer_of_branch) if 0 < layer < k]
+    if above:
+        upper = above[-1].time(fit.offsets_m)
+        sel &= fit.times_s < upper - 2.0 * sigma_s[fit.pick_index]
+    if not np.any(sel):
+        return None
+    xs = fit.shot_x + fit.side * fit.offsets_m[sel]
+    return HeadWaves(mine[-1], np.round(xs, 3), fit.times_s[sel], sigma_s[fit.pick_index[sel]])
+
+
+@dataclass
+class PairTimes:
+    """A reversed pair on one refractor: shot A left (shooting right), shot B right.
+
+    ``common`` are the geophones between the shots that both record, ``ia``/``ib`` their
+    indices into ``a``/``b``; ``t_ab`` the reciprocal time (s) and where it came from;
+    ``plus`` the plus times (s); ``v_pm``, ``dv_pm`` the minus-time velocity and its
+    sigma (m/s, NaN when not defined).
+    """
+
+    fa: object
+    fb: object
+    a: HeadWaves
+    b: HeadWaves
+    common: np.ndarray
+    ia: np.ndarray
+    ib: np.ndarray
+    t_ab: float = float("nan")
+    t_ab_source: str = ""
+    plus: np.ndarray = None
+    v_pm: float = float("nan")
+    dv_pm: float = float("nan")
+
+    def set_reciprocal_time(self, t_ab, source):
+        """Set ``t_ab`` (s) and recompute the plus times and the minus-time velocity."""
+        self.t_ab, self.t_ab_source = float(t_ab), source
+        self.plus, _, self.v_pm, self.dv_pm = plus_minus_times(self.common, self.a.time_s[self.ia],
+                                                               self.b.time_s[self.ib], self.t_ab)
+
+
+def reversed_pair_times(result, k, sigma_s, spacing):
+    """Every reversed pair of sides recording the top of layer k at two or more common
+    geophones between the shots, with its reciprocal time (:func:`_reciprocal_time`)."""
+    out = []
+    for fa, la in zip(result.sides, result.layer_of_branch):
+        sa = head_waves(fa, la, k, sigma_s) if fa.ok and fa.side == 1 else None
+        if sa is None:
+            continue
+        for fb, lb in zip(result.sides, result.layer_of_branch):
+            if not fb.ok or fb.side != -1 or fb.shot_x <= fa.shot_x:
+                continue
+            sb = head_waves(fb, lb, k, sigma_s)
+            if sb is None:
+                continue
+            common, ia, ib = np.intersect1d(sa.x_m, sb.x_m, return_indices=True)
+            inside = (common > fa.shot_x) & (common < fb.shot_x)
+            if inside.sum() < 2:
+                continue
+            pair = PairTimes(fa, fb, sa, sb, common[inside], ia[inside], ib[inside])
+            pair.set_reciprocal_time(*_reciprocal_time(fa.shot_x, fb.shot_x, sa.x_m, sa.time_s, sb.x_m, sb.time_s,
+                                                       sa.branch, sb.branch, fb.shot_x - fa.shot_x, spacing))
+            out.append(pair)
+    return out
+
+
+def match_reciprocal_times(pairs):
+    """Give a pair without a measured reciprocal time (off-end shots) the ``t_AB`` that makes
+    its plus times agree, in the median, with those of the pairs that have one at common
+    geophones: the delay time under a geophone does not depend on the shots (Hagedoorn
+    1959). Failing that, ``t_AB`` stays from the branch lines. Changes the pairs in place."""
+    ref = {}
+    for c in pairs:
+        if c.t_ab_source == "picks":
+            for x, pl in zip(c.common, c.plus):
+                ref.setdefault(float(x), []).append(float(pl))
+    for c in pairs:
+        if c.t_ab_source == "picks":
+            continue
+        shared = [i for i, x in enumerate(c.common) if float(x) in ref]
+        if len(shared) >= 2:
+            sum_t = c.a.time_s[c.ia] + c.b.time_s[c.ib]
+            t_ab = float(np.median([sum_t[i] - np.mean(ref[float(c.common[i])]) for i in shared]))
+            c.set_reciprocal_time(t_ab, "matched to reciprocal pairs")
+
+
+def pooled_velocity(pairs, v_above, v_line, k):
+    """One refractor velocity for all pairs of the top of layer k, m/s, and its sigma.
+
+    The minus-time velocities weighted by their variances (Hagedoorn 1959 uses the
+    minus-time slope; pooling the pairs keeps short pairs from carrying their own poorly
+    determined velocity). The minus-time velocity does not depend on the refractor's
+    shape, the branch-slope line velocity ``v_line`` does; so one resting on many
+    reversed geophones and well determined stands even far from ``v_line``. One from a
+    few geophones (a short overlap, where steep relief breaks the delay-time assumptions)
+    must stay within the plausible range of it, else ``v_line`` is used (sigma NaN) with
+    a notice. Returns ``(velocity_m_s, sigma_m_s, notice or None)``.
+    """
+    good = [(c.v_pm, c.dv_pm) for c in pairs
+            if math.isfinite(c.v_pm) and math.isfinite(c.dv_pm) and c.dv_pm > 0 and c.v_pm > v_above]
+    if good:
+        wv = np.array([1.0 / dv**2 for _, dv in good])
+        v_pool = float(np.sum(wv * np.array([v for v, _ in good])) / wv.sum())
+        dv_pool = float(1.0 / math.sqrt(wv.sum()))
+    else:
+        v_pool, dv_pool = float("nan"), float("nan")
+    n_reversed = len({float(x) for c in pairs for x in c.common})
+    well_determined = (n_reversed >= MINUS_TIME_MIN_GEOPHONES and math.isfinite(dv_pool)
+                       and dv_pool < MINUS_TIME_MAX_REL_SIGMA * v_pool)
+    plausible = math.isfinite(v_pool) and v_pool > v_above and (well_determined or 0.67 < v_pool / v_line < 1.5)
+    if plausible:
+        return v_pool, dv_pool, None
+    note = None if not pairs else notice(
+        "minus-time-velocity-rejected", f"refractor {k - 1}: minus-time velocity {v_pool:.0f} m/s is implausible or "
+        f"missing; the line velocity {v_line:.0f} m/s is used", layer=k)
+    return v_line, float("nan"), note
+
+
+def _pair_depths(c, result, depth_at, k, velocities, v_pool, dv_pool, grm, grm_xy_m, spacing, collected):
+    """Plus-minus (and GRM) depths of one pair into ``collected``; returns the pair's record."""
+    j = k - 1
+    sig_ab = float(np.median(np.concatenate([c.a.sigma_s, c.b.sigma_s])))
+    upper = _upper_thicknesses(result, depth_at, j, c.common, interface_depths)
+    vs_above = velocities[:k - 1]
+    depth = depth_from_time_depth(0.5 * c.plus, vs_above, v_pool, upper)
+    sig_plus = np.sqrt(c.a.sigma_s[c.ia] ** 2 + c.b.sigma_s[c.ib] ** 2 + sig_ab**2)
+    unc = _uncertainty(0.5 * c.plus, 0.5 * sig_plus, vs_above, v_pool, dv_pool, upper)
+    pair = {"refractor": j, "shot_left_x": c.fa.shot_x, "shot_right_x": c.fb.shot_x,
+            "n_geophones": int(c.common.size), "reciprocal_time_ms": c.t_ab * 1e3,
+            "reciprocal_time_from": c.t_ab_source,
+            "minus_time_velocity_m_s": c.v_pm if math.isfinite(c.v_pm) else None,
+            "velocity_used_m_s": v_pool}
+    for x, d, u in zip(c.common, depth, unc):
+        collected["plus-minus"].setdefault(float(x), []).append((float(d), float(u), v_pool))
+    if not grm:
+        return pair
+    fa_i, fb_i = _interp_fn(c.a.x_m, c.a.time_s), _interp_fn(c.b.x_m, c.b.time_s)
+    g = _grm_pair(c.common, fa_i, fb_i, c.t_ab, vs_above, upper_fn=lambda xs: _upper_thicknesses(
+        result, depth_at, j, xs, interface_depths), xy_fixed=grm_xy_m, sig=sig_ab)
+    if g is not None:
+        # Palmer's check on the optimum: the XY of the simplest velocity analysis
+        scan = np.arange(0.0, 2.0 * max(g["xy_m"], spacing) + 1e-9, spacing / 4.0)
+        rough = grm_xy_scan(c.common, fa_i, fb_i, c.t_ab, scan)
+        smooth = float(scan[np.nanargmin(rough)]) if np.any(np.isfinite(rough)) else None
+        pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"],
+                     "grm_xy_smoothest_m": smooth,
+                     "grm_xy_scan_m": [float(v) for v in scan],
+                     "grm_velocity_analysis_rms_ms": [float(v) * 1e3 for v in rough]})
+        for x, d, u in zip(g["x"], g["depth"], g["unc"]):
+            collected["grm"].setdefault(float(x), []).append((float(d), float(u), g["v_prime"]))
+    return pair
+
+
+def _add_rows(rows, collected, j, depth_at, ground_z):
+    """One row per geophone and method: the mean over the pairs (depth m, uncertainty m:
+    the larger of the propagated one and the spread of the pairs, velocity m/s)."""
+    for method, table in collected.items():
+        depth_at[(j, method)] = {}
+        for x in sorted(table):
+            entries = table[x]
+            d = np.array([e[0] for e in entries])
+            u = np.array([e[1] for e in entries])
+            v = float(np.mean([e[2] for e in entries]))
+            dm = float(np.mean(d))
+            um = float(np.sqrt(np.nanmean(u**2) / len(u))) if np.any(np.isfinite(u)) else float("nan")
+            if len(d) > 1:
+                um = float(np.nanmax([um, np.std(d)]))
+            depth_at[(j, method)][x] = dm
+            zs = float(ground_z(x))
+            for c, value in zip(COLUMNS, (j, x, zs, dm, zs - dm, um, v, method)):
+                rows[c].append(value)
+
+
 def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
     """Plus-minus (and optionally GRM) refractor depths under the geophones.
 
@@ -182,169 +386,42 @@ def delay_time_profile(picks, result, terrain=None, grm=False, grm_xy_m=None):
     Returns
     -------
     RefractorProfile
+
+    Notes
+    -----
+    Refractor by refractor, top down: the reversed pairs and their reciprocal times
+    (:func:`reversed_pair_times`, :func:`match_reciprocal_times`), one velocity for all
+    pairs (:func:`pooled_velocity`), each pair's depths, and their mean per geophone.
     """
-    velocities = [lay["velocity_m_s"] for lay in result.layers]
-    n_layers = len(velocities)
-    sigma_default = float(result.options.get("sigma_ms", 0.5)) * 1e-3
-    sig = pick_sigma(picks, sigma_default * 1e3)
-    rx = np.round(picks.receiver_x, 3)
-    spacing = float(np.median(np.diff(np.unique(rx)))) if np.unique(rx).size > 1 else 1.0
+    velocities = [lay.velocity_m_s for lay in result.layers]
+    sig = pick_sigma(picks, float(result.options.get("sigma_ms", 0.5)))
+    spacing = station_spacing(picks)
     surface = {}
-    for x, z in zip(rx, picks.receiver_z):
+    for x, z in zip(np.round(picks.receiver_x, 3), picks.receiver_z):
         surface.setdefault(float(x), float(z))
+
+    def ground_z(x):
+        return terrain.elevation(x) if terrain is not None else surface.get(x, 0.0)
+
     rows = {c: [] for c in COLUMNS}
     pairs_info, warnings = [], []
     depth_at = {}  # (refractor, method) -> {x: depth}
-
-    def side_branch(fit, lob, k):
-        # every branch of the side on this refractor (two or more where a lateral
-        # change split it); the farthest one stands for the side near the other shot
-        mine = [b for b, layer in zip(fit.branches, lob) if layer == k]
-        if not mine:
-            return None
-        sel = np.isin(fit.branch_of_pick, [b.index for b in mine])
-        # Near the crossover a pick may as well be the arrival from the layer above: keep
-        # only picks clearly (two sigmas) earlier than the branch above would give there
-        # (common practice: crossover picks are ambiguous).
-        above = [b for b, layer in zip(fit.branches, lob) if 0 < layer < k]
-        if above:
-            upper = above[-1].time(fit.offsets_m)
-            sel &= fit.times_s < upper - 2.0 * sig[fit.pick_index]
-        if not np.any(sel):
-            return None
-        xs = fit.shot_x + fit.side * fit.offsets_m[sel]
-        return mine[-1], np.round(xs, 3), fit.times_s[sel], sig[fit.pick_index[sel]]
-
-    for k in range(2, n_layers + 1):
-        j = k - 1  # refractor number
-        vk_line = velocities[k - 1]
+    for k in range(2, len(velocities) + 1):
+        pairs = reversed_pair_times(result, k, sig, spacing)
+        match_reciprocal_times(pairs)
+        v_pool, dv_pool, note = pooled_velocity(pairs, velocities[k - 2], velocities[k - 1], k)
+        if note is not None:
+            warnings.append(note)
         collected = {"plus-minus": {}, "grm": {}}
-        candidates = []
-        for fa, la in zip(result.sides, result.layer_of_branch):
-            if not fa.ok or fa.side != 1:
-                continue
-            sa = side_branch(fa, la, k)
-            if sa is None:
-                continue
-            for fb, lb in zip(result.sides, result.layer_of_branch):
-                if not fb.ok or fb.side != -1 or fb.shot_x <= fa.shot_x:
-                    continue
-                sb = side_branch(fb, lb, k)
-                if sb is None:
-                    continue
-                ba, xa, ta, siga = sa
-                bb, xb, tb, sigb = sb
-                common, ia, ib = np.intersect1d(xa, xb, return_indices=True)
-                inside = (common > fa.shot_x) & (common < fb.shot_x)
-                common, ia, ib = common[inside], ia[inside], ib[inside]
-                if common.size < 2:
-                    continue
-                length = fb.shot_x - fa.shot_x
-                t_ab, t_ab_source = _reciprocal_time(fa.shot_x, fb.shot_x, xa, ta, xb, tb, ba, bb, length, spacing)
-                plus, _, v_pm, dv_pm = plus_minus_times(common, ta[ia], tb[ib], t_ab)
-                candidates.append((fa, fb, sa, sb, common, ia, ib, t_ab, t_ab_source, plus, v_pm, dv_pm))
-        # A pair without a measured reciprocal time (off-end shots) gets the t_AB that makes
-        # its plus times agree, in the median, with those of the pairs that have one at
-        # common geophones: the delay time under a geophone does not depend on the shots
-        # (Hagedoorn 1959). Failing that, t_AB stays from the branch lines.
-        ref = {}
-        for c in candidates:
-            if c[8] == "picks":
-                for x, pl in zip(c[4], c[9]):
-                    ref.setdefault(float(x), []).append(float(pl))
-        for n, c in enumerate(candidates):
-            if c[8] == "picks":
-                continue
-            fa, fb, sa, sb, common, ia, ib = c[:7]
-            shared = [i for i, x in enumerate(common) if float(x) in ref]
-            if len(shared) >= 2:
-                sum_t = sa[2][ia] + sb[2][ib]
-                t_ab = float(np.median([sum_t[i] - np.mean(ref[float(common[i])]) for i in shared]))
-                plus, _, v_pm, dv_pm = plus_minus_times(common, sa[2][ia], sb[2][ib], t_ab)
-                candidates[n] = (fa, fb, sa, sb, common, ia, ib, t_ab, "matched to reciprocal pairs", plus, v_pm, dv_pm)
-        # one refractor velocity for all pairs: the minus-time velocities weighted by
-        # their variances (Hagedoorn 1959 uses the minus-time slope; pooling the pairs
-        # keeps short pairs from carrying their own poorly determined velocity)
-        good = [(c[10], c[11]) for c in candidates
-                if math.isfinite(c[10]) and math.isfinite(c[11]) and c[11] > 0 and c[10] > velocities[k - 2]]
-        if good:
-            wv = np.array([1.0 / dv**2 for _, dv in good])
-            v_pool = float(np.sum(wv * np.array([v for v, _ in good])) / wv.sum())
-            dv_pool = float(1.0 / math.sqrt(wv.sum()))
-        else:
-            v_pool, dv_pool = float("nan"), float("nan")
-        # The minus-time velocity does not depend on the refractor's shape (Hagedoorn
-        # 1959), the branch-slope line velocity does; so a minus-time velocity resting on
-        # many reversed geophones and well determined stands even far from the line
-        # velocity. One from a few geophones (a short overlap, where steep relief breaks
-        # the delay-time assumptions) must stay within the plausible range of it.
-        n_reversed = len({float(x) for c in candidates for x in c[4]})
-        well_determined = (n_reversed >= MINUS_TIME_MIN_GEOPHONES and math.isfinite(dv_pool)
-                           and dv_pool < MINUS_TIME_MAX_REL_SIGMA * v_pool)
-        plausible = math.isfinite(v_pool) and v_pool > velocities[k - 2] and (
-            well_determined or 0.67 < v_pool / vk_line < 1.5)
-        if not plausible:
-            if candidates:
-                warnings.append(f"refractor {j}: minus-time velocity {v_pool:.0f} m/s is implausible or missing; "
-                                f"the line velocity {vk_line:.0f} m/s is used")
-            v_pool, dv_pool = vk_line, float("nan")
-        for fa, fb, sa, sb, common, ia, ib, t_ab, t_ab_source, plus, v_pm, dv_pm in candidates:
-            ba, xa, ta, siga = sa
-            bb, xb, tb, sigb = sb
-            sig_ab = float(np.median(np.concatenate([siga, sigb])))
-            upper = _upper_thicknesses(result, depth_at, j, common, interface_depths)
-            vs_above = velocities[:k - 1]
-            depth = depth_from_time_depth(0.5 * plus, vs_above, v_pool, upper)
-            sig_plus = np.sqrt(siga[ia] ** 2 + sigb[ib] ** 2 + sig_ab**2)
-            unc = _uncertainty(0.5 * plus, 0.5 * sig_plus, vs_above, v_pool, dv_pool, upper)
-            pair = {"refractor": j, "shot_left_x": fa.shot_x, "shot_right_x": fb.shot_x,
-                    "n_geophones": int(common.size), "reciprocal_time_ms": t_ab * 1e3,
-                    "reciprocal_time_from": t_ab_source,
-                    "minus_time_velocity_m_s": v_pm if math.isfinite(v_pm) else None,
-                    "velocity_used_m_s": v_pool}
-            for x, d, u in zip(common, depth, unc):
-                collected["plus-minus"].setdefault(float(x), []).append((float(d), float(u), v_pool))
-            if grm:
-                fa_i, fb_i = _interp_fn(xa, ta), _interp_fn(xb, tb)
-                g = _grm_pair(common, fa_i, fb_i, t_ab, vs_above, upper_fn=lambda xs: _upper_thicknesses(
-                    result, depth_at, j, xs, interface_depths), xy_fixed=grm_xy_m, sig=sig_ab)
-                if g is not None:
-                    # Palmer's check on the optimum: the XY of the simplest velocity analysis
-                    scan = np.arange(0.0, 2.0 * max(g["xy_m"], spacing) + 1e-9, spacing / 4.0)
-                    rough = grm_xy_scan(common, fa_i, fb_i, t_ab, scan)
-                    smooth = float(scan[np.nanargmin(rough)]) if np.any(np.isfinite(rough)) else None
-                    pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"],
-                                 "grm_xy_smoothest_m": smooth,
-                                 "grm_xy_scan_m": [float(v) for v in scan],
-                                 "grm_velocity_analysis_rms_ms": [float(v) * 1e3 for v in rough]})
-                    for x, d, u in zip(g["x"], g["depth"], g["unc"]):
-                        collected["grm"].setdefault(float(x), []).append((float(d), float(u), g["v_prime"]))
-            pairs_info.append(pair)
+        for c in pairs:
+            pairs_info.append(_pair_depths(c, result, depth_at, k, velocities, v_pool, dv_pool, grm, grm_xy_m,
+                                           spacing, collected))
         if not collected["plus-minus"]:
-            warnings.append(f"refractor {j} (top of layer {k}): no reversed pair of shots records it at common geophones; "
-                            f"no delay-time depths (the intercept-time depths under the shots stand alone)")
-        for method, table in collected.items():
-            depth_at[(j, method)] = {}
-            for x in sorted(table):
-                entries = table[x]
-                d = np.array([e[0] for e in entries])
-                u = np.array([e[1] for e in entries])
-                v = float(np.mean([e[2] for e in entries]))
-                dm = float(np.mean(d))
-                um = float(np.sqrt(np.nanmean(u**2) / len(u))) if np.any(np.isfinite(u)) else float("nan")
-                if len(d) > 1:
-                    um = float(np.nanmax([um, np.std(d)]))
-                depth_at[(j, method)][x] = dm
-                zs = terrain.elevation(x) if terrain is not None else surface.get(x, 0.0)
-                zs = float(zs)
-                rows["refractor"].append(j)
-                rows["x"].append(x)
-                rows["surface_z"].append(zs)
-                rows["depth_m"].append(dm)
-                rows["elevation_m"].append(zs - dm)
-                rows["uncertainty_m"].append(um)
-                rows["velocity_m_s"].append(v)
-                rows["method"].append(method)
+            warnings.append(notice(
+                "refractor-not-profiled", f"refractor {k - 1} (top of layer {k}): no reversed pair of shots records "
+                f"it at common geophones; no delay-time depths (the intercept-time depths under the shots stand "
+                f"alone)", layer=k))
+        _add_rows(rows, collected, k - 1, depth_at, ground_z)
     return RefractorProfile(
         refractor=np.asarray(rows["refractor"], int), x=np.asarray(rows["x"], float),
         surface_z=np.asarray(rows["surface_z"], float), depth_m=np.asarray(rows["depth_m"], float),

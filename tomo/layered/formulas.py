@@ -138,7 +138,8 @@ def dipping_refractor(v1_m_s, apparent_down_m_s, apparent_up_m_s, intercept_down
     v1 = float(v1_m_s)
     ad, au = float(apparent_down_m_s), float(apparent_up_m_s)
     if not (ad > v1 and au > v1):
-        raise InputError(f"apparent velocities ({ad:.0f}, {au:.0f} m/s) must exceed the top-layer velocity ({v1:.0f} m/s)")
+        raise InputError(f"apparent velocities ({ad:.0f}, {au:.0f} m/s) must exceed the top-layer velocity "
+                         f"({v1:.0f} m/s)")
     ed, eu = math.asin(v1 / ad), math.asin(v1 / au)
     dip = 0.5 * (ed - eu)
     theta = 0.5 * (ed + eu)

@@ -10,8 +10,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..core.fileio import atomic_open
+from ..core.notices import notices_from_values
 
-__all__ = ["RefractorProfile", "write_profile_csv", "COLUMNS", "CSV_COLUMNS", "GRM_COLUMNS"]
+__all__ = ["RefractorProfile", "RefractorLine", "write_profile_csv", "COLUMNS", "CSV_COLUMNS", "GRM_COLUMNS"]
 
 COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s", "method")
 
@@ -24,13 +25,49 @@ GRM_COLUMNS = ("grm_depth_m", "grm_elevation_m", "grm_uncertainty_m", "grm_veloc
 
 
 @dataclass
+class RefractorLine:
+    """One refractor of a delay-time profile as arrays sorted by x.
+
+    Attributes
+    ----------
+    refractor : int
+        Interface number (1: the top of layer 2).
+    method : str
+        "plus-minus" or "grm".
+    x, surface_z, depth_m, elevation_m, uncertainty_m : ndarray
+        Geophone position, ground elevation, refractor depth below the ground, refractor
+        elevation and the depth's one-sigma uncertainty (NaN where unknown), m.
+    velocity_m_s : ndarray
+        Refractor velocity used, m/s.
+    """
+
+    refractor: int
+    method: str
+    x: np.ndarray
+    surface_z: np.ndarray
+    depth_m: np.ndarray
+    elevation_m: np.ndarray
+    uncertainty_m: np.ndarray
+    velocity_m_s: np.ndarray
+
+    def __len__(self):
+        return int(self.x.size)
+
+    @classmethod
+    def empty(cls, refractor, method="plus-minus"):
+        e = np.zeros(0)
+        return cls(int(refractor), method, e, e, e, e, e, e)
+
+
+@dataclass
 class RefractorProfile:
     """Refractor depths under geophones, one entry per geophone, refractor and method.
 
     ``refractor`` j is the top of layer j + 1 (1: the first refractor). Depth (m) below
     the ground at the geophone, elevation (m) = ``surface_z - depth_m``, uncertainty (m)
     one sigma, ``velocity_m_s`` the refractor velocity used, ``method`` "plus-minus" or
-    "grm".
+    "grm". ``pairs`` describes each reversed pair used (dicts), ``warnings`` are
+    :class:`~tomo.core.notices.Notice` records.
     """
 
     refractor: np.ndarray
@@ -55,6 +92,17 @@ class RefractorProfile:
         order = np.argsort(self.x[sel])
         return self.x[sel][order], self.depth_m[sel][order]
 
+    def refractor_line(self, refractor, method="plus-minus"):
+        """One refractor as arrays sorted by x (:class:`RefractorLine`); falls back to any
+        method like :meth:`refractor_depths`; empty when the profile does not map it."""
+        sel = (self.refractor == refractor) & (self.method == method)
+        if not np.any(sel):
+            sel = self.refractor == refractor
+        idx = np.flatnonzero(sel)[np.argsort(self.x[sel])]
+        used = str(self.method[idx[0]]) if idx.size else method
+        return RefractorLine(int(refractor), used, self.x[idx], self.surface_z[idx], self.depth_m[idx],
+                             self.elevation_m[idx], self.uncertainty_m[idx], self.velocity_m_s[idx])
+
     def to_dict(self):
         rows = {c: [] for c in COLUMNS}
         for k in range(len(self)):
@@ -62,7 +110,8 @@ class RefractorProfile:
                 v = getattr(self, c)[k]
                 rows[c].append(str(v) if c == "method" else (int(v) if c == "refractor" else
                                                              (float(v) if math.isfinite(v) else None)))
-        return {"columns": rows, "pairs": list(self.pairs), "warnings": list(self.warnings)}
+        return {"columns": rows, "pairs": list(self.pairs), "warnings": [str(w) for w in self.warnings],
+                "notices": [w.to_dict() for w in self.warnings]}
 
     @classmethod
     def from_dict(cls, d):
@@ -73,7 +122,8 @@ class RefractorProfile:
                    depth_m=arr("depth_m"), elevation_m=arr("elevation_m"),
                    uncertainty_m=arr("uncertainty_m"), velocity_m_s=arr("velocity_m_s"),
                    method=np.asarray(cols["method"], dtype=object),
-                   pairs=list(d.get("pairs", [])), warnings=list(d.get("warnings", [])))
+                   pairs=list(d.get("pairs", [])),
+                   warnings=notices_from_values(d.get("notices"), d.get("warnings", [])))
 
     def to_csv_text(self):
         """CSV text, one row per geophone and refractor.

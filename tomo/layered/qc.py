@@ -7,7 +7,7 @@
   2 ms or 3 % of the time, whichever is larger: "reciprocal times should agree within
   about 1-2 ms or a few per cent" (common practice, from memory);
 - outliers: picks that break from their shot side's branches (the concave
-  piecewise-linear fit of :mod:`tomo.branches`) by more than ``outlier_sigma`` times the
+  piecewise-linear fit of :mod:`tomo.layered.branches`) by more than ``outlier_sigma`` times the
   larger of the pick sigma and the side's robust residual scatter (1.4826 times the
   median absolute residual, the normal-consistent MAD, Hampel 1974, JASA 69);
 - times that fall with offset between neighbouring picks by more than three pick sigmas;
@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..survey.geometry import station_positions, station_spacing
 from .branches import DEFAULT_SIGMA_MS, OUTLIER_SIGMA, fit_side_robust, shot_sides
 
 __all__ = ["QCReport", "check_line", "RECIPROCAL_TOL_MS", "RECIPROCAL_TOL_PCT", "OUTLIER_SIGMA"]
@@ -85,7 +86,8 @@ class QCReport:
         """The QC summary as lines of text (times in ms, distances in m)."""
         lo, hi = self.spacing_range_m
         out = [f"{self.n_shots} shots, {self.n_geophones} geophones, {self.n_picks} picks",
-               f"geophone spacing {self.spacing_m:g} m" + ("" if abs(hi - lo) < 1e-6 else f" (gaps {lo:g} to {hi:g} m)")]
+               f"geophone spacing {self.spacing_m:g} m"
+               + ("" if abs(hi - lo) < 1e-6 else f" (gaps {lo:g} to {hi:g} m)")]
         shots = ", ".join(f"{s['x']:g} ({s['n_left']}L/{s['n_right']}R)" for s in self.shots)
         out.append(f"shots at x (picks left/right): {shots}")
         tol = self.settings
@@ -165,10 +167,9 @@ def check_line(picks, reciprocal_tol_ms=RECIPROCAL_TOL_MS, reciprocal_tol_pct=RE
     QCReport
     """
     src, src_index = picks.sources()
-    rec, _ = picks.receivers()
-    gx = np.unique(np.round(rec[:, 0], 4))
+    gx = station_positions(picks, receivers_only=True)
     gaps = np.diff(gx)
-    spacing = float(np.median(gaps)) if gaps.size else float("nan")
+    spacing = station_spacing(picks, receivers_only=True, default=float("nan"))
     spacing_range = (float(gaps.min()), float(gaps.max())) if gaps.size else (float("nan"), float("nan"))
     shots = []
     for k, (sx, _) in enumerate(src):

@@ -1,5 +1,13 @@
 """The layered interpretation of a line as a value: ``LayeredResult`` (``layers.json``).
 
+Its parts are small dataclasses: a :class:`Layer` per layer of the line table, a
+:class:`ShotDepths` per shot side (intercept-time depths under the shot), a
+:class:`ReversedPair` per reversed pair of branches (dipping-layer formula), the
+delay-time :class:`~tomo.layered.profile.RefractorProfile`, and the warnings as
+:class:`~tomo.core.notices.Notice` records. ``to_dict`` gives the ``layers.json``
+content and ``from_dict`` reads it back, older files included (warnings kept as text
+only come back with the code ``"unclassified"``).
+
 Cautions that go with every result (see :data:`CAUTIONS`): the solution is not unique;
 a layer slower than the one above it, or too thin to give first arrivals of its own,
 does not show on the travel-time curves, and the depths below it come out wrong;
@@ -10,14 +18,15 @@ by a licensed professional under local codes.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 
-from .branches import SideFit
-from .profile import RefractorProfile
+from ..core.notices import notices_from_values
+from .profile import RefractorLine, RefractorProfile
+from .sidefit import SideFit
 
-__all__ = ["LayeredResult", "CAUTIONS", "json_safe", "interface_depths"]
+__all__ = ["LayeredResult", "Layer", "ShotDepths", "ReversedPair", "CAUTIONS", "json_safe", "interface_depths"]
 
 CAUTIONS = [
     "Layered refraction methods assume velocity increases with depth; a layer slower than "
@@ -33,32 +42,159 @@ CAUTIONS = [
 ]
 
 
+def _optional_float(value):
+    return None if value is None else float(value)
+
+
+@dataclass
+class Layer:
+    """One layer of the line table, top to bottom.
+
+    Attributes
+    ----------
+    velocity_m_s : float
+        Layer velocity, m/s.
+    velocity_sigma_m_s : float or None
+        One sigma, m/s; None when not estimated (one side, or a velocity from the
+        minus times).
+    n_sides : int
+        Shot sides whose branches saw the layer.
+    reversed : bool or None
+        Refractor (the layer's top) seen from both directions; None for the top layer.
+    thickness_m, thickness_sigma_m : float or None
+        Line-wide thickness from the intercept times and its one sigma, m; None for the
+        last layer or where no side gives it.
+    depth_top_m : float or None
+        Depth of the layer's top below the ground, m (the sum of the thicknesses above).
+    lateral_change : bool
+        The layer's top changes along the line (a break fixed in place was merged, or the
+        branches shooting one way are not parallel).
+    branch_velocity_m_s : float or None
+        The velocity from the branch slopes when the minus times replaced it, m/s.
+    """
+
+    velocity_m_s: float
+    velocity_sigma_m_s: float | None = None
+    n_sides: int = 0
+    reversed: bool | None = None
+    thickness_m: float | None = None
+    thickness_sigma_m: float | None = None
+    depth_top_m: float | None = None
+    lateral_change: bool = False
+    branch_velocity_m_s: float | None = None
+
+    def to_dict(self):
+        d = {f.name: getattr(self, f.name) for f in fields(self)}
+        if d["branch_velocity_m_s"] is None:
+            del d["branch_velocity_m_s"]  # only layers whose velocity was replaced carry it
+        return d
+
+    @classmethod
+    def from_dict(cls, d):
+        return cls(velocity_m_s=float(d["velocity_m_s"]),
+                   velocity_sigma_m_s=_optional_float(d.get("velocity_sigma_m_s")),
+                   n_sides=int(d.get("n_sides") or 0), reversed=d.get("reversed"),
+                   thickness_m=_optional_float(d.get("thickness_m")),
+                   thickness_sigma_m=_optional_float(d.get("thickness_sigma_m")),
+                   depth_top_m=_optional_float(d.get("depth_top_m")),
+                   lateral_change=bool(d.get("lateral_change", False)),
+                   branch_velocity_m_s=_optional_float(d.get("branch_velocity_m_s")))
+
+
+@dataclass
+class ShotDepths:
+    """Intercept-time depths under one shot side.
+
+    Attributes
+    ----------
+    shot_x : float
+        Shot position, m.
+    side : str
+        "right" or "left".
+    depths_m : dict of int -> float
+        Layer k (2..n) -> depth of its top below the shot, m.
+    """
+
+    shot_x: float
+    side: str
+    depths_m: dict
+
+    def to_dict(self):
+        return {"shot_x": self.shot_x, "side": self.side, "depths_m": {str(k): v for k, v in self.depths_m.items()}}
+
+    @classmethod
+    def from_dict(cls, d):
+        return cls(float(d["shot_x"]), str(d["side"]),
+                   {int(k): (float("nan") if v is None else float(v)) for k, v in d["depths_m"].items()})
+
+
+@dataclass
+class ReversedPair:
+    """A refractor seen from a shot on its left and one on its right (dipping-layer formula).
+
+    Attributes
+    ----------
+    layer : int
+        Layer whose top is the refractor (2..n).
+    shot_left_x, shot_right_x : float
+        The shots, m.
+    apparent_velocity_from_left_m_s, apparent_velocity_from_right_m_s : float
+        Branch velocities shooting to larger and to smaller x, m/s.
+    velocity_m_s, dip_deg : float
+        True velocity, m/s, and dip, degrees (positive: deepening toward larger x).
+    disagreement_pct : float
+        Difference of the two apparent velocities, per cent of their mean.
+    coverage_overlap_m : float
+        Length of line both branches cover, m.
+    perpendicular_depth_left_m, perpendicular_depth_right_m : float or None
+        Depths perpendicular to the refractor under the two shots (first refractor only), m.
+    vertical_depth_left_m, vertical_depth_right_m : float or None
+        The same, vertical, m.
+    """
+
+    layer: int
+    shot_left_x: float
+    shot_right_x: float
+    apparent_velocity_from_left_m_s: float
+    apparent_velocity_from_right_m_s: float
+    velocity_m_s: float
+    dip_deg: float
+    disagreement_pct: float
+    coverage_overlap_m: float
+    perpendicular_depth_left_m: float | None = None
+    perpendicular_depth_right_m: float | None = None
+    vertical_depth_left_m: float | None = None
+    vertical_depth_right_m: float | None = None
+
+    def to_dict(self):
+        # the depths exist for the first refractor only; other pairs leave them out
+        return {f.name: getattr(self, f.name) for f in fields(self) if getattr(self, f.name) is not None}
+
+    @classmethod
+    def from_dict(cls, d):
+        names = {f.name for f in fields(cls)}
+        return cls(**{k: (int(v) if k == "layer" else _optional_float(v)) for k, v in d.items() if k in names})
+
+
 @dataclass
 class LayeredResult:
     """A line's layered interpretation (the content of ``layers.json``).
 
     Attributes
     ----------
-    layers : list of dict
-        Top to bottom: ``velocity_m_s``, ``thickness_m`` (None for the last layer),
-        ``depth_top_m``, ``velocity_sigma_m_s``, ``thickness_sigma_m``, ``reversed``
-        (refractor seen from both directions), ``n_sides`` (shot sides that saw it),
-        ``lateral_change`` (its top changes along the line: a break fixed in place was
-        merged, or the branches shooting one way are not parallel; the velocity is then
-        from the minus times where those are reliable, the branch one kept as
-        ``branch_velocity_m_s``).
+    layers : list of Layer
+        Top to bottom.
     sides : list of SideFit
         Branch fits per shot side.
     layer_of_branch : list of list of int
         For each side, the line layer (1-based) of each branch; 0 when unmatched.
-    shot_depths : list of dict
-        Per shot side: ``shot_x``, ``side``, ``depths_m`` {layer k: depth of the top of
-        layer k below the shot, m} from the intercept times.
-    dips : list of dict
+    shot_depths : list of ShotDepths
+        Per shot side, the intercept-time depths under the shot.
+    dips : list of ReversedPair
         Per reversed pair and refractor: shots, apparent velocities, true velocity, dip.
     profile : RefractorProfile or None
-        Delay-time refractor depths under the geophones (:mod:`tomo.delay`).
-    warnings, messages : list of str
+        Delay-time refractor depths under the geophones (:mod:`tomo.layered.delay`).
+    warnings, messages : list of Notice
         Warnings about the interpretation; per-shot problems with the input.
     cautions : list of str
     options : dict
@@ -70,19 +206,37 @@ class LayeredResult:
     layer_of_branch: list
     shot_depths: list = field(default_factory=list)
     dips: list = field(default_factory=list)
-    profile: object = None
+    profile: RefractorProfile | None = None
     warnings: list = field(default_factory=list)
     messages: list = field(default_factory=list)
     cautions: list = field(default_factory=lambda: list(CAUTIONS))
     options: dict = field(default_factory=dict)
 
     @property
-    def velocities_m_s(self):
-        return np.array([lay["velocity_m_s"] for lay in self.layers])
+    def velocities(self):
+        """Layer velocities top to bottom, m/s (array)."""
+        return np.array([lay.velocity_m_s for lay in self.layers], float)
 
     @property
-    def thicknesses_m(self):
-        return np.array([np.nan if lay["thickness_m"] is None else lay["thickness_m"] for lay in self.layers[:-1]])
+    def thicknesses(self):
+        """Thicknesses of the layers above the last, m (array; NaN where unknown)."""
+        return np.array([np.nan if lay.thickness_m is None else lay.thickness_m for lay in self.layers[:-1]], float)
+
+    velocities_m_s = velocities
+    thicknesses_m = thicknesses
+
+    def refractor(self, k, method="plus-minus"):
+        """The delay-time refractor of interface ``k`` (1: the top of layer 2) as arrays
+        (:class:`~tomo.layered.profile.RefractorLine`: x, depth, elevation, uncertainty in
+        m, sorted by x); empty without a profile."""
+        if self.profile is None:
+            return RefractorLine.empty(k)
+        return self.profile.refractor_line(k, method)
+
+    @property
+    def refractors(self):
+        """Interface numbers the delay-time profile maps (sorted)."""
+        return [] if self.profile is None else sorted({int(r) for r in self.profile.refractor})
 
     def to_dict(self):
         """Plain JSON-ready content (NaN and infinities become None)."""
@@ -95,28 +249,34 @@ class LayeredResult:
             d["layer_of_branch"] = [int(k) for k in layers]
             sides.append(d)
         return {
-            "layers": [dict(lay) for lay in self.layers],
+            "layers": [lay.to_dict() for lay in self.layers],
             "shots": sides,
-            "shot_depths": [dict(s, depths_m={str(k): v for k, v in s["depths_m"].items()}) for s in self.shot_depths],
-            "dips": [dict(d) for d in self.dips],
+            "shot_depths": [s.to_dict() for s in self.shot_depths],
+            "dips": [d.to_dict() for d in self.dips],
             "delay_time_profile": None if self.profile is None else self.profile.to_dict(),
-            "warnings": list(self.warnings),
-            "messages": list(self.messages),
+            # the text for people and older readers; the records (code, layer, hint) below
+            "warnings": [str(w) for w in self.warnings],
+            "messages": [str(m) for m in self.messages],
             "cautions": list(self.cautions),
             "options": dict(self.options),
+            "notices": {"warnings": [w.to_dict() for w in self.warnings],
+                        "messages": [m.to_dict() for m in self.messages]},
         }
 
     @classmethod
     def from_dict(cls, d):
+        """A result from ``layers.json`` content (or the copy a run file keeps)."""
         sides = [SideFit.from_dict(s) for s in d.get("shots", [])]
         layer_of_branch = [list(s.get("layer_of_branch", [])) for s in d.get("shots", [])]
-        shot_depths = [dict(s, depths_m={int(k): v for k, v in s["depths_m"].items()}) for s in d.get("shot_depths", [])]
         prof = d.get("delay_time_profile")
+        records = d.get("notices") or {}
         return cls(
-            layers=[dict(lay) for lay in d["layers"]], sides=sides, layer_of_branch=layer_of_branch,
-            shot_depths=shot_depths, dips=[dict(x) for x in d.get("dips", [])],
+            layers=[Layer.from_dict(lay) for lay in d["layers"]], sides=sides, layer_of_branch=layer_of_branch,
+            shot_depths=[ShotDepths.from_dict(s) for s in d.get("shot_depths", [])],
+            dips=[ReversedPair.from_dict(x) for x in d.get("dips", [])],
             profile=None if prof is None else RefractorProfile.from_dict(prof),
-            warnings=list(d.get("warnings", [])), messages=list(d.get("messages", [])),
+            warnings=notices_from_values(records.get("warnings"), d.get("warnings", [])),
+            messages=notices_from_values(records.get("messages"), d.get("messages", [])),
             cautions=list(d.get("cautions", CAUTIONS)), options=dict(d.get("options", {})),
         )
 
@@ -147,11 +307,11 @@ def interface_depths(result, x):
     n = len(result.layers)
     out = np.empty((n - 1, x.size))
     for k in range(2, n + 1):
-        default = result.layers[k - 1]["depth_top_m"]
+        default = result.layers[k - 1].depth_top_m
         pts = {}
         for s in result.shot_depths:
-            if k in s["depths_m"] and math.isfinite(s["depths_m"][k]):
-                pts.setdefault(round(s["shot_x"], 4), []).append(s["depths_m"][k])
+            if k in s.depths_m and math.isfinite(s.depths_m[k]):
+                pts.setdefault(round(s.shot_x, 4), []).append(s.depths_m[k])
         if pts:
             xs = np.array(sorted(pts))
             ds = np.array([np.mean(pts[v]) for v in xs])

@@ -183,7 +183,7 @@ def paint_layers(result, mesh):
     ndarray, shape (mesh.nz, mesh.nx)
         Velocity, m/s; NaN in the air.
     """
-    v = np.array([lay["velocity_m_s"] for lay in result.layers], float)
+    v = result.velocities
     depth = mesh.depth
     out = np.full(mesh.shape, v[0])
     if v.size > 1:

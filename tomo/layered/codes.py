@@ -1,0 +1,64 @@
+"""The notices of the layered stage: one stable code per kind, with its "what to do" hint.
+
+Code and tests compare the codes (:class:`tomo.core.notices.Notice`), never the text.
+A code names what was found, not how it is worded, so the sentence may be improved
+without breaking anything that reads the records.
+"""
+
+from __future__ import annotations
+
+from ..core.notices import Notice
+
+__all__ = ["HINTS", "notice"]
+
+_FIX_COUNT = "fix the branch count (--branches or --side-branches) and compare"
+_MORE_SHOTS = "add shots so that each refractor is recorded from both directions"
+
+#: Every code of the layered stage with its hint (common practice for each remedy).
+HINTS = {
+    # one shot side (tomo.layered.branches)
+    "side-too-few-picks": "check the picks of this side; it needs three or more",
+    "side-times-decrease": "check the shot position and the picks",
+    "side-no-increasing-fit": "check the picks of this side; try --outlier-sigma or fixed breaks",
+    "breaks-too-close": "move the break offsets apart",
+    "branch-count-reduced": "ask for fewer branches on this side",
+    "branch-few-picks": "treat this branch's velocity with care; check the picks near its ends",
+    "outliers-left-out": "check the picks marked in the branches figure",
+    "times-bend-wrong-way": _FIX_COUNT,
+    # the shots (tomo.layered.interpret)
+    "shot-one-sided": "",
+    # matching branches to the line's layers (tomo.layered.matching)
+    "break-fixed-in-place": "compare the delay-time refractor with the tomogram there",
+    "branches-parallel": "compare the delay-time refractor with the tomogram there",
+    "branch-bent-by-relief": "",
+    "branch-unmatched": _FIX_COUNT,
+    # refractor velocities (tomo.layered.velocities)
+    "apparent-velocities-differ": "read the delay-time refractor rather than one depth per shot",
+    "branches-not-parallel": "read the delay-time refractor rather than one depth per shot",
+    "layer-no-common-coverage": _MORE_SHOTS,
+    "layer-not-reversed": _MORE_SHOTS,
+    "velocity-not-increasing": "check the branch matching in the branches figure; " + _FIX_COUNT,
+    # thicknesses (tomo.layered.thickness)
+    "thickness-missing": _MORE_SHOTS,
+    "thickness-not-positive": "check the branch matching and the picks near the crossovers",
+    # the method's limits (tomo.layered.interpret)
+    "hidden-layer-limit": "calibrate against a borehole or test pit",
+    "one-layer-only": "record longer offsets to reach a refractor",
+    "minus-time-velocity-used": "",
+    # the delay-time profile (tomo.layered.delay)
+    "minus-time-velocity-rejected": "check the reversed pairs' picks; the line velocity is used",
+    "refractor-not-profiled": _MORE_SHOTS,
+}
+
+
+def notice(code, message, layer=None, branch=None, fit=None, shot_x=None, side=None):
+    """A :class:`Notice` of the layered stage with the hint of its ``code``.
+
+    ``fit`` (a :class:`tomo.layered.sidefit.SideFit`) gives the shot and side concerned,
+    or ``shot_x`` (m) and ``side`` ("left"/"right") do.
+    """
+    if code not in HINTS:
+        raise KeyError(f"unknown notice code {code!r}")
+    if fit is not None:
+        shot_x, side = float(fit.shot_x), fit.side_name
+    return Notice(code, message, layer=layer, branch=branch, shot_x=shot_x, side=side, hint=HINTS[code])
