@@ -57,10 +57,16 @@ def make_run(layered=True, seed=1, base_shift_m=0.0):
     if layered:
         depth = _base_depth(geophones)
         surface = terrain.elevation(geophones)
+        # the layers.json layout (a short one: older files carry no per-layer sigmas,
+        # no depth uncertainty and warnings as text only)
+        n = geophones.size
         layered_dict = {
             "layers": [{"velocity_m_s": 510.0, "thickness_m": 3.9}, {"velocity_m_s": 1480.0, "thickness_m": None}],
-            "profile": [{"refractor": 1, "x": float(x), "surface_z": float(s), "depth_m": float(d) + 0.2,
-                         "elevation_m": float(s - d - 0.2)} for x, s, d in zip(geophones, surface, depth)],
+            "delay_time_profile": {"columns": {
+                "refractor": [1] * n, "x": [float(x) for x in geophones], "surface_z": [float(s) for s in surface],
+                "depth_m": [float(d) + 0.2 for d in depth],
+                "elevation_m": [float(s - d - 0.2) for s, d in zip(surface, depth)],
+                "uncertainty_m": [None] * n, "velocity_m_s": [1480.0] * n, "method": ["plus-minus"] * n}},
             "warnings": ["made-up warning for the report test"],
         }
     return RunData(

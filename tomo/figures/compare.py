@@ -8,6 +8,9 @@ the refractor is well determined by two different methods; where they part, look
 the coverage and the assumptions (the layered method assumes velocity increasing with
 depth and laterally uniform layers between shots).
 
+The layered result is read with :meth:`tomo.layered.result.LayeredResult.from_dict`
+(the run file keeps its ``layers.json`` content).
+
 Uncertainty of a delay-time depth. When the layered result gives none, it is estimated
 from the pick uncertainty: a plus time t+ = t_AG + t_BG - t_AB adds three picks, so
 sigma(t+) = sqrt(3) sigma_t for independent picks, and the depth
@@ -23,6 +26,7 @@ from matplotlib import patheffects
 
 from ..analysis.coverage import covered
 from ..analysis.surface import contour_surface
+from ..layered.result import layered_result
 from . import style
 from .section import _edges, colorbar, colour_range, display_cells, draw_base
 
@@ -33,34 +37,9 @@ _HALO = [patheffects.withStroke(linewidth=3.2, foreground="white")]
 
 
 def layer_velocities(layered):
-    """Layer velocities (m/s) top to bottom from a layered result dict (layers.json)."""
-    layers = (layered or {}).get("layers") or []
-    return [float(layer["velocity_m_s"]) for layer in layers if layer.get("velocity_m_s") is not None]
-
-
-def _rows(layered):
-    for key in ("delay_time_profile", "profile", "refractor_profile", "refractors", "refractor", "delay_time", "delay_times"):
-        value = (layered or {}).get(key)
-        if isinstance(value, dict) and "columns" in value:
-            value = value["columns"]
-        if isinstance(value, dict) and "rows" in value:
-            value = value["rows"]
-        if isinstance(value, dict) and "x" in value:
-            n = len(value["x"])
-            return [{k: (v[i] if isinstance(v, (list, tuple)) else v) for k, v in value.items()} for i in range(n)]
-        if isinstance(value, list) and value and isinstance(value[0], dict):
-            return value
-    return []
-
-
-def _get(row, *names):
-    for name in names:
-        if name in row and row[name] is not None:
-            try:
-                return float(row[name])
-            except (TypeError, ValueError):
-                return float("nan")
-    return float("nan")
+    """Layer velocities (m/s) top to bottom of a layered result (or its dict, layers.json)."""
+    result = layered_result(layered)
+    return [] if result is None else [float(v) for v in result.velocities]
 
 
 def refractor_profiles(layered, sigma_t_ms=None):
@@ -68,9 +47,10 @@ def refractor_profiles(layered, sigma_t_ms=None):
 
     Parameters
     ----------
-    layered : dict
-        layers.json content: ``layers`` and a profile with rows of ``refractor, x,
-        surface_z, depth_m, elevation_m`` (and optionally a depth uncertainty).
+    layered : LayeredResult or dict
+        The result or its ``layers.json`` content; each refractor is read with
+        :meth:`~tomo.layered.result.LayeredResult.refractor` (the plus-minus depths, the
+        GRM ones where the profile has no others).
     sigma_t_ms : float, optional
         Pick uncertainty used to estimate the depth uncertainty when the profile has none.
 
@@ -80,31 +60,25 @@ def refractor_profiles(layered, sigma_t_ms=None):
         Per refractor number: ``x, surface_z, depth_m, elevation_m, sigma_m`` (m), sorted
         by x; ``sigma_m`` NaN where unknown.
     """
-    rows = _rows(layered)
-    velocities = layer_velocities(layered)
-    out = {}
-    for row in rows:
-        k = int(_get(row, "refractor")) if np.isfinite(_get(row, "refractor")) else 1
-        out.setdefault(k, []).append(row)
+    result = layered_result(layered)
+    if result is None:
+        return {}
+    velocities = layer_velocities(result)
     profiles = {}
-    for k, group in sorted(out.items()):
-        x = np.array([_get(r, "x", "x_m") for r in group])
-        surface = np.array([_get(r, "surface_z", "ground_z") for r in group])
-        depth = np.array([_get(r, "depth_m") for r in group])
-        elevation = np.array([_get(r, "elevation_m") for r in group])
+    for k in result.refractors:
+        line = result.refractor(k)
+        elevation = line.elevation_m.copy()
         missing = ~np.isfinite(elevation)
-        elevation[missing] = (surface - depth)[missing]
-        sigma = np.array([_get(r, "uncertainty_m", "depth_sigma_m", "sigma_depth_m", "sigma_m", "uncertainty_m", "depth_error_m")
-                          for r in group])
+        elevation[missing] = (line.surface_z - line.depth_m)[missing]
+        sigma = line.uncertainty_m
         if not np.any(np.isfinite(sigma)) and sigma_t_ms and len(velocities) > k:
             v1, v2 = velocities[k - 1], velocities[k]
             if v2 > v1:
-                sigma = np.full(x.size, np.sqrt(3.0) * sigma_t_ms * 1e-3 * v1 * v2 / (2.0 * np.sqrt(v2**2 - v1**2)))
-        order = np.argsort(x)
-        keep = np.isfinite(x[order]) & np.isfinite(elevation[order])
-        sel = order[keep]
-        profiles[k] = {"x": x[sel], "surface_z": surface[sel], "depth_m": depth[sel],
-                       "elevation_m": elevation[sel], "sigma_m": sigma[sel]}
+                sigma_plus_s = np.sqrt(3.0) * sigma_t_ms * 1e-3
+                sigma = np.full(line.x.size, sigma_plus_s * v1 * v2 / (2.0 * np.sqrt(v2**2 - v1**2)))
+        keep = np.isfinite(line.x) & np.isfinite(elevation)
+        profiles[k] = {"x": line.x[keep], "surface_z": line.surface_z[keep], "depth_m": line.depth_m[keep],
+                       "elevation_m": elevation[keep], "sigma_m": sigma[keep]}
     return profiles
 
 

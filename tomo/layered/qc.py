@@ -54,8 +54,8 @@ class QCReport:
         Neighbouring picks whose time falls with offset beyond three sigmas.
     unreversed_shots : list of float
         Shot positions (m) with no reversed partner.
-    side_messages : list of str
-        Sides that could not be fitted, and why.
+    side_messages : list of Notice
+        Sides that could not be fitted, and why (:class:`tomo.core.notices.Notice`).
     settings : dict
     """
 
@@ -123,7 +123,7 @@ class QCReport:
             out.append("shots with no reversed partner: " + ", ".join(f"{x:g} m" for x in self.unreversed_shots))
         else:
             out.append("every shot has a reversed partner")
-        out.extend(self.side_messages)
+        out.extend(m.message for m in self.side_messages)
         return out
 
     def to_dict(self):
@@ -131,7 +131,8 @@ class QCReport:
                 "spacing_m": self.spacing_m, "spacing_range_m": list(self.spacing_range_m),
                 "shots": self.shots, "reciprocal_pairs": self.reciprocal_pairs, "outliers": self.outliers,
                 "decreasing": self.decreasing, "unreversed_shots": self.unreversed_shots,
-                "side_messages": self.side_messages, "settings": self.settings}
+                "side_messages": [m.message for m in self.side_messages],
+                "side_notices": [m.to_dict() for m in self.side_messages], "settings": self.settings}
 
 
 def _time_at(xs, ts, x, spacing):

@@ -26,7 +26,8 @@ from ..core.notices import notices_from_values
 from .profile import RefractorLine, RefractorProfile
 from .sidefit import SideFit
 
-__all__ = ["LayeredResult", "Layer", "ShotDepths", "ReversedPair", "CAUTIONS", "json_safe", "interface_depths"]
+__all__ = ["LayeredResult", "Layer", "ShotDepths", "ReversedPair", "CAUTIONS", "layered_result", "json_safe",
+           "interface_depths"]
 
 CAUTIONS = [
     "Layered refraction methods assume velocity increases with depth; a layer slower than "
@@ -279,6 +280,14 @@ class LayeredResult:
             messages=notices_from_values(records.get("messages"), d.get("messages", [])),
             cautions=list(d.get("cautions", CAUTIONS)), options=dict(d.get("options", {})),
         )
+
+
+def layered_result(value):
+    """A :class:`LayeredResult` from a result or its ``layers.json`` content (a run file
+    keeps that content); None for None or an empty dict."""
+    if not value:
+        return None
+    return value if isinstance(value, LayeredResult) else LayeredResult.from_dict(value)
 
 
 def json_safe(value):

@@ -19,6 +19,7 @@ import numpy as np
 
 from ..core.fileio import atomic_open
 from ..core.version import __version__
+from ..layered.result import layered_result
 
 __all__ = ["CAUTIONS", "LAYERED_START_NOTE", "pick_qc", "build_report", "write_report"]
 
@@ -194,12 +195,13 @@ def _qc_section(run):
                             rows, numeric=(0, 1, 2, 3, 4)))
         if out.size > 20:
             parts.append(f'<p class="note">(largest 20 of {out.size} shown)</p>')
-    warnings = (run.layered or {}).get("warnings") or []
+    layered = layered_result(run.layered)
+    warnings = [] if layered is None else layered.warnings
     if warnings:
         shown = warnings[:MAX_WARNINGS]
         more = len(warnings) - len(shown)
         parts.append(f"<h3>Warnings from the layered interpretation ({len(warnings)})</h3><ul>"
-                     + "".join(f"<li>{_esc(w if isinstance(w, str) else json.dumps(w))}</li>" for w in shown)
+                     + "".join(f"<li>{_esc(w.message)}</li>" for w in shown)
                      + (f"<li><i>... and {more} more: see the output of <code>tomo layers</code> or its "
                         "layers.json.</i></li>" if more > 0 else "")
                      + "</ul>")
@@ -213,19 +215,19 @@ def _settings_section(run):
 
 
 def _layered_section(run):
-    from ..figures.compare import compare_tables, layer_velocities
+    from ..figures.compare import compare_tables
 
-    if not run.layered:
-        return '<p class="note">This run file holds no layered interpretation; the table and the comparison figure are left out.</p>'
-    layers = run.layered.get("layers") or []
+    layered = layered_result(run.layered)
+    if layered is None:
+        return ('<p class="note">This run file holds no layered interpretation; the table and the comparison '
+                'figure are left out.</p>')
     rows = []
     top = 0.0
-    for k, layer in enumerate(layers, start=1):
-        thick = layer.get("thickness_m")
-        v = layer.get("velocity_m_s")
+    for k, layer in enumerate(layered.layers, start=1):
+        thick, v = layer.thickness_m, layer.velocity_m_s
         depth_text = f"{top:.1f} to {top + thick:.1f}" if thick is not None else f"below {top:.1f}"
-        dv, dh = layer.get("velocity_sigma_m_s"), layer.get("thickness_sigma_m")
-        v_text = "-" if v is None else f"{v:.0f}" + (f" ± {dv:.0f}" if dv is not None else "")
+        dv, dh = layer.velocity_sigma_m_s, layer.thickness_sigma_m
+        v_text = f"{v:.0f}" + (f" ± {dv:.0f}" if dv is not None else "")
         h_text = "-" if thick is None else f"{thick:.1f}" + (f" ± {dh:.1f}" if dh is not None else "")
         rows.append((str(k), v_text, h_text, depth_text))
         if thick is not None:
@@ -252,7 +254,7 @@ def _layered_section(run):
         parts.append(f'<p class="note">{LAYERED_START_NOTE}</p>')
     if tables:
         parts.append(_surface_table(run, tables[-1]["contour_m_s"]))
-    if not tables and len(layer_velocities(run.layered)) >= 2:
+    if not tables and len(layered.layers) >= 2:
         parts.append('<p class="note">The layered result holds no delay-time refractor profile to compare.</p>')
     return "\n".join(parts)
 
