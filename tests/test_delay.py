@@ -66,11 +66,11 @@ def test_line_reproduces_plus_minus_and_grm_worked_example():
     picks = two_layer_picks(v1, v2, h, gx, [0.0, 120.0])
     result = interpret_line(picks, grm=True)
     (pair,) = result.profile.pairs
-    assert round(pair["reciprocal_time_ms"], 2) == 66.55
-    assert pair["reciprocal_time_from"] == "picks"
+    assert round(pair.reciprocal_time_ms, 2) == 66.55
+    assert pair.reciprocal_time_from == "picks"
     xy_expected = 2 * h * math.tan(math.asin(v1 / v2))
     assert round(xy_expected, 2) == 6.20
-    assert round(pair["grm_xy_m"], 2) == 6.20
+    assert round(pair.grm_xy_m, 2) == 6.20
     for method in ("plus-minus", "grm"):
         x, depth = result.profile.refractor_depths(1, method)
         assert x.size >= 10
@@ -127,8 +127,8 @@ def test_irregular_refractor_from_the_solver():
     # the smoothest XY of the scan to one scan step plus half a geophone spacing.
     assert 2 * 6.0 * math.tan(math.asin(500.0 / 2000.0)) == pytest.approx(3.1, abs=0.05)
     for pair in result.profile.pairs:
-        if pair["n_geophones"] >= 20:
-            assert abs(pair["grm_xy_m"] - pair["grm_xy_smoothest_m"]) <= 0.5 + 1.0
+        if pair.n_geophones >= 20:
+            assert abs(pair.grm_xy_m - pair.grm_xy_smoothest_m) <= 0.5 + 1.0
 
 
 def test_uncertainty_matches_scatter():

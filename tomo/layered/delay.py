@@ -52,7 +52,7 @@ from ..core.errors import InputError
 from ..survey.geometry import station_spacing
 from .branches import pick_sigma
 from .codes import notice
-from .profile import COLUMNS, RefractorProfile
+from .profile import COLUMNS, DelayPair, RefractorProfile
 from .result import interface_depths
 
 __all__ = ["delay_time_profile", "depth_from_time_depth", "plus_minus_times", "grm_times", "grm_xy_scan",
@@ -321,11 +321,10 @@ def _pair_depths(c, result, depth_at, k, velocities, v_pool, dv_pool, grm, grm_x
     depth = depth_from_time_depth(0.5 * c.plus, vs_above, v_pool, upper)
     sig_plus = np.sqrt(c.a.sigma_s[c.ia] ** 2 + c.b.sigma_s[c.ib] ** 2 + sig_ab**2)
     unc = _uncertainty(0.5 * c.plus, 0.5 * sig_plus, vs_above, v_pool, dv_pool, upper)
-    pair = {"refractor": j, "shot_left_x": c.fa.shot_x, "shot_right_x": c.fb.shot_x,
-            "n_geophones": int(c.common.size), "reciprocal_time_ms": c.t_ab * 1e3,
-            "reciprocal_time_from": c.t_ab_source,
-            "minus_time_velocity_m_s": c.v_pm if math.isfinite(c.v_pm) else None,
-            "velocity_used_m_s": v_pool}
+    pair = DelayPair(refractor=j, shot_left_x=c.fa.shot_x, shot_right_x=c.fb.shot_x,
+                     n_geophones=int(c.common.size), reciprocal_time_ms=c.t_ab * 1e3,
+                     reciprocal_time_from=c.t_ab_source,
+                     minus_time_velocity_m_s=c.v_pm if math.isfinite(c.v_pm) else None, velocity_used_m_s=v_pool)
     for x, d, u in zip(c.common, depth, unc):
         collected["plus-minus"].setdefault(float(x), []).append((float(d), float(u), v_pool))
     if not grm:
@@ -338,10 +337,9 @@ def _pair_depths(c, result, depth_at, k, velocities, v_pool, dv_pool, grm, grm_x
         scan = np.arange(0.0, 2.0 * max(g["xy_m"], spacing) + 1e-9, spacing / 4.0)
         rough = grm_xy_scan(c.common, fa_i, fb_i, c.t_ab, scan)
         smooth = float(scan[np.nanargmin(rough)]) if np.any(np.isfinite(rough)) else None
-        pair.update({"grm_xy_m": g["xy_m"], "grm_velocity_m_s": g["v_prime"],
-                     "grm_xy_smoothest_m": smooth,
-                     "grm_xy_scan_m": [float(v) for v in scan],
-                     "grm_velocity_analysis_rms_ms": [float(v) * 1e3 for v in rough]})
+        pair.grm_xy_m, pair.grm_velocity_m_s, pair.grm_xy_smoothest_m = g["xy_m"], g["v_prime"], smooth
+        pair.grm_xy_scan_m = [float(v) for v in scan]
+        pair.grm_velocity_analysis_rms_ms = [float(v) * 1e3 for v in rough]
         for x, d, u in zip(g["x"], g["depth"], g["unc"]):
             collected["grm"].setdefault(float(x), []).append((float(d), float(u), g["v_prime"]))
     return pair

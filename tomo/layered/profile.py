@@ -5,14 +5,15 @@ from __future__ import annotations
 import csv
 import io
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 
 from ..core.fileio import atomic_open
 from ..core.notices import notices_from_values
 
-__all__ = ["RefractorProfile", "RefractorLine", "write_profile_csv", "COLUMNS", "CSV_COLUMNS", "GRM_COLUMNS"]
+__all__ = ["RefractorProfile", "RefractorLine", "DelayPair", "write_profile_csv", "COLUMNS", "CSV_COLUMNS",
+           "GRM_COLUMNS"]
 
 COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncertainty_m", "velocity_m_s", "method")
 
@@ -22,6 +23,58 @@ CSV_COLUMNS = ("refractor", "x", "surface_z", "depth_m", "elevation_m", "uncerta
 
 
 GRM_COLUMNS = ("grm_depth_m", "grm_elevation_m", "grm_uncertainty_m", "grm_velocity_m_s")
+
+
+@dataclass
+class DelayPair:
+    """A reversed pair of shots used for the delay times of one refractor.
+
+    Attributes
+    ----------
+    refractor : int
+        Interface number (1: the top of layer 2).
+    shot_left_x, shot_right_x : float
+        Shot A (left, shooting right) and shot B (right), m.
+    n_geophones : int
+        Geophones between the shots that both record.
+    reciprocal_time_ms : float
+        ``t_AB``, ms; ``reciprocal_time_from`` says how it was found ("picks", "matched
+        to reciprocal pairs" or "branch lines").
+    minus_time_velocity_m_s : float or None
+        The pair's own minus-time velocity, m/s.
+    velocity_used_m_s : float
+        The refractor velocity its depths use (pooled over the pairs), m/s.
+    grm_xy_m, grm_velocity_m_s, grm_xy_smoothest_m : float or None
+        With GRM: the optimum XY (m), the velocity-analysis velocity (m/s) and the XY of
+        the smoothest velocity analysis (m).
+    grm_xy_scan_m, grm_velocity_analysis_rms_ms : list of float or None
+        With GRM: the XY values scanned (m) and the roughness of each (ms).
+    """
+
+    refractor: int
+    shot_left_x: float
+    shot_right_x: float
+    n_geophones: int
+    reciprocal_time_ms: float
+    reciprocal_time_from: str
+    minus_time_velocity_m_s: float | None
+    velocity_used_m_s: float
+    grm_xy_m: float | None = None
+    grm_velocity_m_s: float | None = None
+    grm_xy_smoothest_m: float | None = None
+    grm_xy_scan_m: list | None = None
+    grm_velocity_analysis_rms_ms: list | None = None
+
+    def to_dict(self):
+        d = {f.name: getattr(self, f.name) for f in fields(self)}
+        if self.grm_xy_m is None:  # a pair without GRM results carries no GRM keys
+            d = {k: v for k, v in d.items() if not k.startswith("grm_")}
+        return d
+
+    @classmethod
+    def from_dict(cls, d):
+        names = {f.name for f in fields(cls)}
+        return cls(**{k: v for k, v in d.items() if k in names})
 
 
 @dataclass
@@ -66,7 +119,7 @@ class RefractorProfile:
     ``refractor`` j is the top of layer j + 1 (1: the first refractor). Depth (m) below
     the ground at the geophone, elevation (m) = ``surface_z - depth_m``, uncertainty (m)
     one sigma, ``velocity_m_s`` the refractor velocity used, ``method`` "plus-minus" or
-    "grm". ``pairs`` describes each reversed pair used (dicts), ``warnings`` are
+    "grm". ``pairs`` describes each reversed pair used (:class:`DelayPair`), ``warnings`` are
     :class:`~tomo.core.notices.Notice` records.
     """
 
@@ -110,8 +163,8 @@ class RefractorProfile:
                 v = getattr(self, c)[k]
                 rows[c].append(str(v) if c == "method" else (int(v) if c == "refractor" else
                                                              (float(v) if math.isfinite(v) else None)))
-        return {"columns": rows, "pairs": list(self.pairs), "warnings": [str(w) for w in self.warnings],
-                "notices": [w.to_dict() for w in self.warnings]}
+        return {"columns": rows, "pairs": [p.to_dict() for p in self.pairs],
+                "warnings": [str(w) for w in self.warnings], "notices": [w.to_dict() for w in self.warnings]}
 
     @classmethod
     def from_dict(cls, d):
@@ -122,7 +175,7 @@ class RefractorProfile:
                    depth_m=arr("depth_m"), elevation_m=arr("elevation_m"),
                    uncertainty_m=arr("uncertainty_m"), velocity_m_s=arr("velocity_m_s"),
                    method=np.asarray(cols["method"], dtype=object),
-                   pairs=list(d.get("pairs", [])),
+                   pairs=[DelayPair.from_dict(p) for p in d.get("pairs", [])],
                    warnings=notices_from_values(d.get("notices"), d.get("warnings", [])))
 
     def to_csv_text(self):
