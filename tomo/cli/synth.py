@@ -21,6 +21,13 @@ def register(sub):
                    help="standard deviation of Gaussian noise added to the times, ms (recorded as sigma_ms)")
     p.add_argument("--seed", type=int, default=None, help="seed of the noise generator")
     p.add_argument("--workers", type=int, default=1, help="processes for the forward solves (default 1)")
+    p.add_argument("--records", metavar="DIR",
+                   help="also write a SEG-Y shot record per shot into DIR (a causal wavelet at each noise-free "
+                        "first arrival, amplitude falling as 1/offset, white noise)")
+    p.add_argument("--record-snr", type=float, default=3.0, metavar="R",
+                   help="signal-to-noise ratio of the records at the line's longest offset (default 3)")
+    p.add_argument("--record-dt-ms", type=float, default=0.25, metavar="MS",
+                   help="record sample interval, ms (default 0.25)")
     p.set_defaults(run=run)
 
 
@@ -30,9 +37,15 @@ def run(args):
 
     if args.noise_ms < 0:
         raise InputError(f"--noise-ms must be >= 0, got {args.noise_ms:g}")
+    record_settings = None
+    if args.records:
+        from ..records.synthetic import RecordSettings
+
+        record_settings = RecordSettings(dt_s=args.record_dt_ms * 1e-3, snr=args.record_snr).check()
     picks, info = synthesize(args.model, args.layout, args.out, terrain=args.terrain, mesh=args.mesh,
                              noise_ms=args.noise_ms, seed=args.seed, workers=args.workers,
-                             progress=progress_printer("travel-time fields"))
+                             progress=progress_printer("travel-time fields"), records_dir=args.records,
+                             record_settings=record_settings)
     for message in info["notices"]:
         note(message)
     note(f"mesh: {info['mesh']}")
@@ -41,4 +54,6 @@ def run(args):
     t = picks.time_s * 1e3
     print(f"wrote {len(picks)} picks from {info['n_shots']} shots to {args.out} "
           f"(times {t.min():.2f} to {t.max():.2f} ms, noise {args.noise_ms:g} ms)")
+    if info["records"]:
+        print(f"wrote {len(info['records'])} SEG-Y shot records to {args.records}")
     return 0

@@ -21,11 +21,14 @@ def synthetic_times(model, picks, mesh, samples=8, workers=1, progress=None):
 
 
 def synthesize(model_path, layout_path, out_path, terrain=None, mesh=None, noise_ms=0.0,
-               seed=None, workers=1, progress=None):
+               seed=None, workers=1, progress=None, records_dir=None, record_settings=None):
     """Read a model and layout, compute times, add noise, write a pick file atomically.
 
+    With ``records_dir``, also write one SEG-Y shot record per shot there, made from the
+    noise-free times (``tomo.records.synthetic``; ``record_settings`` a RecordSettings).
+
     Returns the Picks written and a dict of information (mesh description, notices,
-    fallbacks, number of shots).
+    fallbacks, number of shots, record files).
     """
     model = read_model(model_path)
     terrain_obj = read_terrain(terrain) if terrain else model.terrain
@@ -42,7 +45,12 @@ def synthesize(model_path, layout_path, out_path, terrain=None, mesh=None, noise
         # a noisy time at a very short offset could come out non-positive
         times = np.maximum(times, 1e-5)
     picks = layout.with_times(times, sigma)
+    records = []
+    if records_dir is not None:
+        from ..records.synthetic import write_line_records
+
+        records = write_line_records(records_dir, layout, result.time_s, record_settings, seed)
     write_picks(out_path, picks)
     info = {"mesh": grid.describe(), "notices": layout.notices, "fallbacks": result.fallbacks,
-            "n_shots": len(layout.sources()[0]), "spec": spec.as_dict()}
+            "n_shots": len(layout.sources()[0]), "spec": spec.as_dict(), "records": records}
     return picks, info
