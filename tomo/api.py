@@ -10,9 +10,9 @@ from .core.errors import InputError, TomoError
 from .layered.branches import check_branch_count
 from .results.runfile import RunWriter
 from .survey.geometry import station_spacing
+from .survey.line import read_line
 from .survey.meshspec import inversion_mesh_spec, read_mesh_spec
-from .survey.picks import read_picks
-from .survey.terrain import read_terrain, terrain_from_stations
+from .survey.terrain import terrain_from_stations
 from .tomography.inversion import InversionSettings, invert
 from .tomography.mesh import mesh_for_picks
 from .tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
@@ -21,7 +21,7 @@ __all__ = ["run_inversion"]
 
 
 def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered", out_path="run.h5",
-                  progress=None, branches=None, start_smoothing=None, **settings):
+                  progress=None, branches=None, start_smoothing=None, stations_path=None, crs=None, **settings):
     """Read the files, build the mesh and starting model, invert, write the run file.
 
     Parameters
@@ -44,6 +44,11 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
     start_smoothing : float, optional
         Gaussian smoothing of the layered start, model cells (default
         ``tomo.starting.LAYERED_SMOOTHING_CELLS``; 0: the sharp layers).
+    stations_path : str or Path, optional
+        Stations file (``tomo.survey.stations``): distances along the surveyed line,
+        the ground from its elevations, and the line recorded in the run for exports.
+    crs : int or str, optional
+        EPSG code of the stations' easting and northing.
     **settings
         Fields of :class:`InversionSettings`.
 
@@ -55,9 +60,9 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
         opts = InversionSettings.from_dict(settings).check()
     except TypeError as exc:
         raise InputError(f"bad setting: {exc}") from None
-    terrain = read_terrain(terrain_path) if terrain_path else None
-    picks = read_picks(picks_path, terrain=terrain)
-    notes = list(picks.notices)
+    line = read_line(picks_path, terrain_path, stations_path, crs)
+    picks, terrain = line.picks, line.terrain
+    notes = list(line.notices)
     if terrain is None:
         terrain = terrain_from_stations(picks)
         if terrain is not None:
@@ -92,9 +97,12 @@ def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered"
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
              "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
              "terrain_file": None if terrain_path is None else str(terrain_path),
-             "mesh_file": None if mesh_path is None else str(mesh_path)}
-    return invert(picks, mesh, velocity, opts, progress=progress,
-                  checkpoint=None if out_path is None else RunWriter(out_path), layered=layered,
-                  notes=notes, extra_settings=extra)
+             "mesh_file": None if mesh_path is None else str(mesh_path),
+             "stations_file": None if stations_path is None else str(stations_path)}
+    result = invert(picks, mesh, velocity, opts, progress=progress,
+                    checkpoint=None if out_path is None else RunWriter(out_path, stations=line.stations),
+                    layered=layered, notes=notes, extra_settings=extra)
+    result.stations = line.stations
+    return result
 
 

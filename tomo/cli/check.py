@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from . import note
+from .line_options import add_line_options, read_line_args
 
 
 def register(sub):
@@ -17,6 +18,7 @@ def register(sub):
     )
     p.add_argument("picks", metavar="PICKS.csv", help="pick file")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x,z)")
+    add_line_options(p)
     p.add_argument("--figure", metavar="qc.png", help="write the travel-time curves with flagged picks")
     p.add_argument("--reciprocal-tol-ms", type=float, default=RECIPROCAL_TOL_MS, metavar="MS",
                    help=f"reciprocal tolerance, ms (default {RECIPROCAL_TOL_MS:g}; common practice: 1-2 ms)")
@@ -33,15 +35,13 @@ def register(sub):
 def run(args):
     from ..core.errors import InputError
     from ..layered.qc import check_line
-    from ..survey.picks import read_picks
-    from ..survey.terrain import read_terrain
 
     for name in ("reciprocal_tol_ms", "reciprocal_tol_pct", "outlier_sigma", "sigma_ms"):
         if not getattr(args, name) > 0:
             raise InputError(f"--{name.replace('_', '-')} must be positive, got {getattr(args, name):g}")
-    terrain = read_terrain(args.terrain) if args.terrain else None
-    picks = read_picks(args.picks, terrain=terrain)
-    for message in picks.notices:
+    line = read_line_args(args)
+    picks = line.picks
+    for message in line.notices:
         note(message)
     report = check_line(picks, reciprocal_tol_ms=args.reciprocal_tol_ms, reciprocal_tol_pct=args.reciprocal_tol_pct,
                         outlier_sigma=args.outlier_sigma, sigma_ms=args.sigma_ms)

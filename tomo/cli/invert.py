@@ -8,6 +8,7 @@ import sys
 from ..tomography.inversion import InversionSettings as _Settings
 from ..tomography.starting import LAYERED_SMOOTHING_CELLS
 from . import note
+from .line_options import add_line_options
 
 _D = _Settings()
 
@@ -23,6 +24,7 @@ def register(sub):
     )
     p.add_argument("picks", metavar="PICKS.csv", help="pick file")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x, z in m)")
+    add_line_options(p)
     p.add_argument("--mesh", metavar="MESH.toml",
                    help="mesh spec (default: cells of half the station spacing, chosen from the survey)")
     p.add_argument("--start", choices=["layered", "gradient"], default="layered",
@@ -82,7 +84,8 @@ def run(args):
     try:
         result = run_inversion(args.picks, terrain_path=args.terrain, mesh_path=args.mesh, start=args.start,
                                out_path=args.out, progress=_print_progress, branches=args.branches,
-                               start_smoothing=args.start_smoothing, **settings)
+                               start_smoothing=args.start_smoothing, stations_path=args.stations, crs=args.crs,
+                               **settings)
     except InversionInterrupted as exc:
         print(f"tomo invert: {exc.message}", file=sys.stderr)
         return 130

@@ -6,6 +6,7 @@ import json
 import math
 
 from . import note
+from .line_options import add_line_options, read_line_args
 
 
 def register(sub):
@@ -20,6 +21,7 @@ def register(sub):
     )
     p.add_argument("picks", metavar="PICKS.csv", help="pick file")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x,z)")
+    add_line_options(p)
     p.add_argument("--out", metavar="layers.json", help="write the interpretation as JSON")
     p.add_argument("--profile", metavar="refractor.csv",
                    help="write refractor depths per geophone: refractor,x,surface_z,depth_m,elevation_m,"
@@ -126,13 +128,11 @@ class _DefaultDict(dict):
 
 def run(args):
     from ..layered.interpret import interpret_line
-    from ..survey.picks import read_picks
-    from ..survey.terrain import read_terrain
 
     options = options_from_args(args)
-    terrain = read_terrain(args.terrain) if args.terrain else None
-    picks = read_picks(args.picks, terrain=terrain)
-    for message in picks.notices:
+    line = read_line_args(args)
+    picks, terrain = line.picks, line.terrain
+    for message in line.notices:
         note(message)
     result = interpret_line(picks, terrain=terrain, **options)
     for message in result.messages:

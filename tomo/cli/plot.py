@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from . import add_versus_options, note, read_versus
+from .line_options import add_boreholes_option, with_boreholes
 
 
 def register(sub):
@@ -16,6 +17,7 @@ def register(sub):
     p.add_argument("--out", required=True, metavar="DIR", help="folder for the figures (created if needed)")
     p.add_argument("--format", dest="formats", action="append", choices=["png", "pdf", "svg"],
                    help="file format (repeatable; default png and pdf)")
+    add_boreholes_option(p)
     add_versus_options(p, "also draw the 'versus' figure: the same iso-velocity surface in both and their difference")
     p.set_defaults(run=run)
 
@@ -25,6 +27,7 @@ def run(args):
     from ..figures.versus import versus_figure, versus_summary, versus_table
 
     run_data, other, labels = read_versus(args)
+    run_data = with_boreholes(run_data, args.boreholes)
     extra, summary = [], None
     if other is not None:
         summary = versus_summary(versus_table(run_data, other, args.contour, labels), labels)

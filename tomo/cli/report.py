@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from . import add_versus_options, note, read_versus
+from .line_options import add_boreholes_option, with_boreholes
 
 
 def register(sub):
@@ -13,6 +14,7 @@ def register(sub):
     )
     p.add_argument("run_file", metavar="RUN.h5", help="run file written by 'tomo invert'")
     p.add_argument("--out", required=True, metavar="REPORT.html", help="HTML file to write")
+    add_boreholes_option(p)
     add_versus_options(p, "add the comparison of one iso-velocity surface in both")
     p.set_defaults(run=run)
 
@@ -21,6 +23,7 @@ def run(args):
     from ..results.report import write_report
 
     run_data, other, labels = read_versus(args)
+    run_data = with_boreholes(run_data, args.boreholes)
     path = write_report(args.out, run_data, source=args.run_file, skip_note=note, other=other, labels=labels,
                         contour_m_s=args.contour)
     size_kb = path.stat().st_size / 1024

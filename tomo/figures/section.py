@@ -6,6 +6,7 @@ ray of their column, or in columns without rays: :func:`tomo.export.covered`) ar
 blanked, drawn as pale grey ground, where the model is the starting model's; the
 coverage section blanks every cell no ray crosses. A dashed depth-of-investigation line
 marks where the coverage thins out (:func:`tomo.export.investigation_elevation`).
+Boreholes the run holds are drawn on every section (:mod:`tomo.figures.boreholes`).
 """
 
 from __future__ import annotations
@@ -19,6 +20,7 @@ from matplotlib.ticker import FuncFormatter, MaxNLocator
 
 from ..analysis.coverage import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
 from . import style
+from .boreholes import draw_boreholes, lowest_borehole
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
            "display_cells", "colorbar", "colour_range", "stations", "view_window"]
@@ -69,6 +71,9 @@ def view_window(run):
         z_min = max(z_min, z_floor)
     else:
         z_min = z_floor
+    deepest_hole = lowest_borehole(run)
+    if np.isfinite(deepest_hole):
+        z_min = max(min(z_min, deepest_hole - 0.05 * (z_max - deepest_hole)), z_floor)
     pad = 0.04 * (z_max - z_min)
     return x_min, x_max, z_min, z_max + 3 * pad
 
@@ -108,6 +113,7 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
             label="geophones", clip_on=False)
     ax.plot(shots[:, 0], shots[:, 1] + 0.03 * height, "*", ms=8.5, color=SHOT_COLOR, mec=style.BLACK,
             mew=0.5, zorder=7, label="shots", clip_on=False)
+    draw_boreholes(ax, run, height)
     if doi:
         line = investigation_elevation(run)
         ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6, label="depth of investigation (95 % of ray length above)")

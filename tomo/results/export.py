@@ -8,14 +8,15 @@ Grid file (CSV, one row per ground cell)::
 
 Surface file (CSV, one row per model column)::
 
-    x,ground_z,depth_m,elevation_m,constrained
+    x,ground_z,depth_m,elevation_m,constrained[,easting,northing]
 
 ``depth_m`` is vertical, below the ground at ``x``; ``elevation_m`` the elevation of
 the first place, going down from the ground, where the model reaches the chosen
 velocity; both are empty where the column never reaches it. ``constrained`` is 1 where
 that place lies above the depth of investigation (:func:`investigation_elevation`,
 where the ray coverage thins out), else 0: a surface drawn where few or no rays go is
-mostly the starting model's, not the data's.
+mostly the starting model's, not the data's. A run on a line in map coordinates adds
+the column's ``easting, northing`` on the surveyed line (m; empty beyond the end stations).
 
 The surface itself and the depth of investigation come from :mod:`tomo.analysis`.
 """
@@ -69,12 +70,16 @@ def write_surface(path, run, velocity_m_s, source=None, surface=None):
     Returns the surface dict.
     """
     surface = surface if surface is not None else contour_surface(run, velocity_m_s)
+    on_map = run.stations is not None
+    if on_map:
+        easting, northing = run.stations.map_at(surface["x"])
     with atomic_open(path, "w", encoding="utf-8", newline="") as f:
         f.write(f"# tomo {run.tomo_version} {float(velocity_m_s):g} m/s iso-velocity surface"
                 f"{f' from {source}' if source else ''}: depth vertical below ground (m), "
                 "empty where not reached; constrained = 1 where rays cross it\n")
-        f.write("x,ground_z,depth_m,elevation_m,constrained\n")
+        f.write("x,ground_z,depth_m,elevation_m,constrained" + (",easting,northing\n" if on_map else "\n"))
         for k in range(surface["x"].size):
             f.write(f"{surface['x'][k]:.3f},{surface['ground_z'][k]:.3f},{_fmt(surface['depth_m'][k], 3)},"
-                    f"{_fmt(surface['elevation_m'][k], 3)},{int(surface['constrained'][k])}\n")
+                    f"{_fmt(surface['elevation_m'][k], 3)},{int(surface['constrained'][k])}"
+                    + (f",{_fmt(easting[k], 3)},{_fmt(northing[k], 3)}\n" if on_map else "\n"))
     return surface

@@ -145,6 +145,15 @@ def _input_summary(run):
                              f"({len(run.terrain_x)} terrain points)"),
         ("Model grid", _mesh_text(run)),
     ]
+    if run.stations is not None:
+        st = run.stations
+        side = st.sideways()
+        rows.append(("Line on the map", f"{len(st)} surveyed stations, {st.spread_m:.1f} m along the line, "
+                                        f"{st.crs if st.crs else 'no coordinate system given'}; largest sideways "
+                                        f"departure {side.max_m:.2f} m ({100 * side.fraction:.1f} % of the spread)"
+                                        + ("; a 2-D section misplaces depths" if side.warn else "")))
+    if run.boreholes is not None and len(run.boreholes):
+        rows.append(("Boreholes", f"{len(run.boreholes)} (section 4)"))
     return _table(["", ""], rows)
 
 
@@ -259,6 +268,35 @@ def _layered_section(run):
     return "\n".join(parts)
 
 
+def _boreholes_section(run):
+    """The boreholes beside both interpretations (:mod:`tomo.results.borehole_ties`)."""
+    from .borehole_ties import borehole_ties
+
+    ties = borehole_ties(run)
+    if not ties:
+        return ('<p class="note">No boreholes were given: the depths above are not calibrated. Tie them to '
+                "boreholes, trial pits or probes on the line (tomo plot/report/export --boreholes B.csv).</p>")
+
+    def depth(value, error):
+        return "-" if not np.isfinite(value) else f"{value:.1f} ({error:+.1f})"
+
+    rows = [(t.label, f"{t.x:.1f}", f"{t.offset_m:.1f}", f"{t.ground_z:.1f}", f"{t.depth_m:.1f} ± {t.sigma_m:.1f}",
+             "fastest" if t.interface == 0 else str(t.interface),
+             depth(t.layered_depth_m, t.layered_error_m),
+             "-" if not np.isfinite(t.contour_m_s) else f"{t.contour_m_s:.0f}",
+             depth(t.tomogram_depth_m, t.tomogram_error_m)
+             if t.constrained or not np.isfinite(t.tomogram_depth_m)
+             else _Raw(f'{_esc(depth(t.tomogram_depth_m, t.tomogram_error_m))} <span class="flag">below DOI</span>'))
+            for t in ties]
+    return ("<h3>Boreholes</h3><p>Each logged interface beside the layered delay-time refractor and the "
+            "tomogram's contour for that interface at the borehole (in brackets: minus the logged depth; positive "
+            "is deeper). The boreholes were not used by either interpretation here; a difference larger than "
+            "the uncertainties calls for a look at both the borehole and the picks.</p>"
+            + _table(["borehole", "x (m)", "off line (m)", "ground (m)", "logged depth (m)", "interface",
+                      "layered depth (m)", "contour (m/s)", "tomogram depth (m)"], rows,
+                     numeric=(1, 2, 3, 4, 6, 7, 8)))
+
+
 def _surface_table(run, velocity_m_s, step_m=10.0):
     """Depth to an iso-velocity surface at round distances along the spread."""
     from ..analysis.surface import contour_surface
@@ -368,6 +406,7 @@ professional under the local codes.</div>
 {_settings_section(run)}
 <h2 id="layered">4. Layered interpretation</h2>
 {_layered_section(run)}
+{_boreholes_section(run)}
 <h2 id="misfit">5. Final misfit</h2>
 {_misfit_section(run)}
 <h2 id="figures">6. Figures</h2>

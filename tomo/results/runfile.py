@@ -16,6 +16,8 @@ Layout (all lengths m, velocities m/s, times ms as named)::
     /history/chi2, rms_ms, lambda, step   (n_iter + 1) values, entry 0 = starting model
     /iterations/NNN/velocity  (nz, nx) each finished iteration's model (NNN from 001),
                               attrs chi2, rms_ms, lambda
+    /stations, /boreholes     optional: the line on the map and its boreholes
+                              (:mod:`tomo.results.runfile_map`)
 
 The file is always written whole to a temporary name and renamed, so an interrupted
 run leaves the previous complete file (the last finished iteration), never a torn one.
@@ -33,6 +35,7 @@ from ..core.errors import InputError
 from ..core.fileio import atomic_path
 from ..core.version import __version__
 from ..tomography.run import RunData
+from .runfile_map import read_map_groups, write_map_groups
 
 __all__ = ["write_run", "read_run", "RunWriter", "FORMAT", "FORMAT_VERSION"]
 
@@ -78,6 +81,7 @@ def write_run(path, run):
             g = f.create_group("history")
             for name in _HISTORY_FIELDS:
                 g[name] = np.asarray(run.history.get(name, []), float)
+            write_map_groups(f, run)
             g = f.create_group("iterations")
             for k, model in enumerate(run.iteration_models, start=1):
                 d = g.create_dataset(f"{k:03d}/velocity", data=np.asarray(model, float), compression="gzip", compression_opts=4)
@@ -147,6 +151,7 @@ def read_run(path):
                 layered=json.loads(layered) if layered is not None else None,
                 notes=json.loads(f.attrs.get("notes", "[]")),
                 tomo_version=str(f.attrs["tomo_version"]), created=str(f.attrs["created"]),
+                **read_map_groups(f),
             )
         except (KeyError, OSError, ValueError) as exc:
             raise InputError(f"run file is incomplete or damaged ({exc})", path=path) from None
@@ -158,12 +163,17 @@ def read_run(path):
 
 class RunWriter:
     """A checkpoint for :func:`tomo.tomography.inversion.invert`: writes each run it is
-    given to ``path`` (atomically, so an interrupted run keeps the last whole file)."""
+    given to ``path`` (atomically, so an interrupted run keeps the last whole file).
+    ``fields`` are RunData fields set on every run before it is written (e.g. the
+    ``stations`` of a line in map coordinates, which the inversion does not use)."""
 
-    def __init__(self, path):
+    def __init__(self, path, **fields):
         self.path = Path(path)
+        self.fields = fields
 
     def __call__(self, run):
+        for name, value in self.fields.items():
+            setattr(run, name, value)
         write_run(self.path, run)
 
     def __str__(self):

@@ -192,7 +192,8 @@ def read_picks(path, terrain=None, layout=False):
             k = int(np.flatnonzero(outside)[0])
             role, x = ("source", sx[k]) if not terrain.covers(sx[k]) else ("receiver", rx[k])
             raise InputError(
-                f"{role} at x = {x:g} m is outside the terrain ({terrain.x[0]:g} to {terrain.x[-1]:g} m)",
+                f"{role} at x = {x:g} m is outside the terrain{f' of {terrain.path}' if terrain.path else ''} "
+                f"({terrain.x[0]:g} to {terrain.x[-1]:g} m)",
                 path=path, line=lines[k], field=f"{role}_x",
             )
     sz = _place_on_ground(sx, data.get("source_z"), terrain, path, lines, "source", notices)

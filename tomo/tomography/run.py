@@ -45,6 +45,10 @@ class RunData:
         The layered interpretation used or made alongside (layers.json content).
     notes : list of str
     tomo_version, created : str
+    stations : tomo.survey.stations.Stations or None
+        The line in map coordinates (surveyed stations and their EPSG system), if given.
+    boreholes : tomo.survey.boreholes.Boreholes or None
+        Boreholes placed on the line (``x`` in distance along it), if given.
     """
 
     x: np.ndarray
@@ -68,6 +72,8 @@ class RunData:
     notes: list = field(default_factory=list)
     tomo_version: str = __version__
     created: str = ""
+    stations: object = None
+    boreholes: object = None
 
     @property
     def residual_ms(self):

@@ -1,0 +1,40 @@
+"""Options shared by the commands that read a pick file: the line in map coordinates."""
+
+from __future__ import annotations
+
+
+def add_line_options(parser):
+    """``--stations STATIONS.csv`` and ``--crs EPSG`` (see :mod:`tomo.survey.stations`)."""
+    parser.add_argument("--stations", metavar="STATIONS.csv",
+                        help="surveyed stations: x (as in the picks), easting, northing, elevation (m); the "
+                             "section then runs along the surveyed line and its ground is the station elevations "
+                             "(instead of --terrain)")
+    parser.add_argument("--crs", metavar="EPSG",
+                        help="EPSG code of the stations' easting and northing, a projected system in metres "
+                             "(e.g. 32633 for UTM zone 33N); needed to place exports on the map")
+
+
+def read_line_args(args):
+    """The :class:`tomo.survey.line.LineInput` of ``args.picks`` with ``--terrain``, ``--stations``, ``--crs``."""
+    from ..survey.line import read_line
+
+    return read_line(args.picks, args.terrain, args.stations, args.crs)
+
+
+def add_boreholes_option(parser):
+    """``--boreholes B.csv`` for the commands that draw, list or export a run's boreholes."""
+    parser.add_argument("--boreholes", metavar="B.csv",
+                        help="boreholes: x (or easting, northing), depth_m below ground to the logged "
+                             "interface, optional sigma_m, label, interface; drawn and listed beside the "
+                             "run's results (replacing any the run file holds)")
+
+
+def with_boreholes(run, path):
+    """``run`` with the boreholes of ``path`` placed on its line (unchanged when ``path`` is None)."""
+    if path is None:
+        return run
+    from ..analysis.boreholes import place_boreholes
+    from ..survey.boreholes import read_boreholes
+
+    run.boreholes = place_boreholes(read_boreholes(path), run)
+    return run
