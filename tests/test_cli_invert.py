@@ -101,7 +101,7 @@ def test_unconverged_layered_run_suggests_the_gradient_start(pick_file, tmp_path
     picks, mesh = pick_file
     out = tmp_path / "run.h5"
     status = main(["invert", str(picks), "--mesh", str(mesh), "--out", str(out), "--workers", "1",
-                   "--max-iterations", "1", "--lambda-cooling", "1"])
+                   "--max-iterations", "1"])
     err = capsys.readouterr().err
     assert status == 0, err
     assert not read_run(out).converged

@@ -275,8 +275,8 @@ def test_bounds_that_exclude_the_start(small_case):
 
 
 def test_bad_setting_is_named():
-    with pytest.raises(InputError, match="lambda_cooling"):
-        InversionSettings(lambda_cooling=1.5).check()
+    with pytest.raises(InputError, match="trust_reduction"):
+        InversionSettings(trust_reduction=1.5).check()
 
 
 def test_interrupted_run_keeps_the_last_finished_iteration(small_case, tmp_path):
@@ -305,7 +305,7 @@ def test_fields_from_the_geophones_give_the_same_rays():
     # agree to the solver's accuracy target (0.5 % or 0.2 ms, issue 2) and the ray
     # matrices predict the same time change for a smooth perturbation (2 %: two
     # independent discretisations of the same paths).
-    from tomo.tomography.inversion import forward_pass
+    from tomo.tomography.passes import forward_pass
 
     mesh = inversion_mesh()
     layout = line_picks(TERRAIN, [0.0, 14.0, 30.0, 46.0], np.arange(-4.0, 51.0, 3.0))
@@ -324,17 +324,20 @@ def test_rays_traced_later_are_the_rays_traced_at_once():
     # one pass with rays, in this process and through the workers' shared fields. An
     # internal consistency check of that split; the matrix itself is checked against
     # finite differences of the forward solver in tests/test_rays.py.
-    from tomo.tomography.inversion import forward_pass, trace_pass
+    from tomo.tomography.passes import forward_pass, trace_pass
+    from tomo.tomography.workers import Workers
 
     mesh = inversion_mesh()
     layout = line_picks(TERRAIN, GEOPHONES, SHOTS)
     s = np.where(mesh.ground, np.where(mesh.depth > 6.0, 1.0 / 1800.0, 1.0 / 600.0), 0.0)
     at_once = forward_pass(mesh, s, layout, InversionSettings(workers=1))
     for workers in (1, 2):
-        later = forward_pass(mesh, s, layout, InversionSettings(workers=workers), rays=False)
+        pool = Workers(workers)
+        later = forward_pass(mesh, s, layout, InversionSettings(workers=workers), pool, rays=False)
         assert later.matrix is None and later.rays_s == 0.0
         np.testing.assert_array_equal(later.time_s, at_once.time_s)
-        trace_pass(mesh, later, InversionSettings(workers=workers))
+        trace_pass(mesh, later, InversionSettings(workers=workers), pool)
+        pool.close()
         assert later.pending is None and later.rays_s > 0.0
         assert abs(later.matrix - at_once.matrix).max() <= 1e-12
         assert trace_pass(mesh, later) == (0.0, 0.0)  # nothing left to trace

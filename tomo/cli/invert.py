@@ -16,8 +16,9 @@ _D = _Settings()
 def register(sub):
     p = sub.add_parser(
         "invert", help="invert first-arrival picks for a gridded velocity section",
-        description="Travel-time tomography: regularised least-squares updates from a starting "
-                    "model until the picks are fitted to their uncertainty (chi-squared about 1). "
+        description="Travel-time tomography: the smoothest velocity model that fits the picks to "
+                    "their uncertainty (chi-squared about 1), by regularised least-squares updates "
+                    "from a starting model. "
                     "The run file is rewritten after every finished iteration, so Ctrl-C keeps "
                     "the last finished one. A tomogram is one of many models that fit the picks: "
                     "velocities do not identify materials; calibrate against boreholes.",
@@ -51,11 +52,9 @@ def register(sub):
     g.add_argument("--smooth-z", metavar="W", type=float, default=_D.smooth_z,
                    help=f"weight of vertical smoothing (default {_D.smooth_z:g})")
     g.add_argument("--damping", metavar="W", type=float, default=_D.damping,
-                   help=f"weight of damping toward the starting model (default {_D.damping:g})")
-    g.add_argument("--lambda-start", metavar="X", type=float, default=_D.lambda_start,
-                   help=f"starting regularisation weight, relative (default {_D.lambda_start:g})")
-    g.add_argument("--lambda-cooling", metavar="X", type=float, default=_D.lambda_cooling,
-                   help=f"factor lowering the weight per iteration (default {_D.lambda_cooling:g})")
+                   help="weight of damping toward the starting model, relative to the smoothing "
+                        f"(default {_D.damping:g}: off, so the start leaves nothing of itself where the "
+                        "picks are silent)")
     g.add_argument("--v-min", type=float, default=None, metavar="M_S",
                    help="lowest velocity allowed, m/s (default: min(150, half the starting minimum))")
     g.add_argument("--v-max", type=float, default=None, metavar="M_S",
@@ -77,8 +76,7 @@ def run(args):
     settings = dict(
         max_iterations=args.max_iterations, chi2_target=args.chi2_target,
         default_sigma_ms=args.sigma_ms, parameter=args.parameter, smooth_x=args.smooth_x,
-        smooth_z=args.smooth_z, damping=args.damping, lambda_start=args.lambda_start,
-        lambda_cooling=args.lambda_cooling, v_min_m_s=args.v_min, v_max_m_s=args.v_max,
+        smooth_z=args.smooth_z, damping=args.damping, v_min_m_s=args.v_min, v_max_m_s=args.v_max,
         workers=args.workers,
     )
     try:
@@ -100,12 +98,12 @@ def run(args):
              "see the residuals before using the section")
         if result.settings.get("start") == "layered":
             # a wrong layer in the start (e.g. curved branches of an undulating
-            # refractor read as extra layers) is kept unless the picks push it out
-            note("the layered starting model stays where the picks do not demand a change; "
-                 "check its layers ('tomo layers', and --branches N to fix their number) "
+            # refractor read as extra layers) can trap the iterations far from the fit
+            note("check the layered start ('tomo layers', and --branches N to fix the number of layers) "
                  "and compare a run with --start gradient")
     elif result.settings.get("start") == "layered":
-        # a tomogram keeps much of its start where the picks allow: the plain check
+        # the smoothest model that fits hardly depends on the start (README, Two starting
+        # models), but where the two differ the picks do not decide: the cheap check
         note(f"to see what the picks leave open, invert them again with --start gradient and compare: "
              f"tomo plot {args.out} --out FIGURES --versus OTHER.h5")
     return 0

@@ -20,17 +20,15 @@ fallback is recorded.
 
 from __future__ import annotations
 
-import multiprocessing as mp
-import os
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
 import skfmm
 
 from ..core.errors import InputError, SolverError
+from .workers import Workers
 
-__all__ = ["solve_field", "sample_field", "travel_times", "ForwardResult", "DEFAULT_SOURCE_RADIUS"]
+__all__ = ["solve_field", "sample_field", "travel_times", "field_origins", "ForwardResult", "DEFAULT_SOURCE_RADIUS"]
 
 #: Largest radius of the exactly-timed start around each source, in node spacings.
 DEFAULT_SOURCE_RADIUS = 6.0
@@ -197,16 +195,27 @@ class ForwardResult:
     fallbacks: list = field(default_factory=list)
 
 
-# Shared read-only state of one travel_times call: forked workers inherit it, so each
-# task carries only its source and targets instead of pickled grids.
-_SHARED = {}
+def field_origins(picks, reciprocity=True):
+    """Where fields are solved from: the shots, or the geophones when there are fewer of
+    them and ``reciprocity`` is on (the time from A to B equals that from B to A in an
+    isotropic medium). Returns (origins (n, 2) of (x, z) m, each pick's origin index,
+    each pick's target (x, z) m)."""
+    src, src_index = picks.sources()
+    rec, rec_index = picks.receivers()
+    if reciprocity and len(rec) < len(src):
+        return rec, rec_index, np.column_stack([picks.source_x, picks.source_z])
+    return src, src_index, np.column_stack([picks.receiver_x, picks.receiver_z])
 
 
-def _solve_group(args):
-    origin, targets = args
-    mesh, slowness, speed, order, radius = _SHARED["forward"]
-    f = solve_field(mesh, slowness, origin[0], origin[1], order=order, source_radius=radius, speed=speed)
-    return sample_field(mesh, f, targets[:, 0], targets[:, 1]), f.fallback
+def _solve_group(task):
+    """Worker: the fields of a group of origins, sampled at their targets."""
+    mesh, slowness, origins, targets, order, radius = task
+    speed = node_speed(mesh, slowness)
+    out = []
+    for (x, z), xz in zip(origins, targets):
+        f = solve_field(mesh, slowness, x, z, order=order, source_radius=radius, speed=speed)
+        out.append((sample_field(mesh, f, xz[:, 0], xz[:, 1]), f.fallback))
+    return out
 
 
 def travel_times(mesh, slowness, picks, order=2, source_radius=DEFAULT_SOURCE_RADIUS,
@@ -232,43 +241,30 @@ def travel_times(mesh, slowness, picks, order=2, source_radius=DEFAULT_SOURCE_RA
     slowness = np.asarray(slowness, float)
     if slowness.shape != mesh.node_shape:
         raise InputError(f"slowness has shape {slowness.shape}, expected the forward grid {mesh.node_shape}")
-    src, src_index = picks.sources()
-    rec, rec_index = picks.receivers()
-    reciprocal = bool(reciprocity and len(rec) < len(src))
-    if reciprocal:
-        origins, origin_index, targets_xz = rec, rec_index, np.column_stack([picks.source_x, picks.source_z])
-    else:
-        origins, origin_index, targets_xz = src, src_index, np.column_stack([picks.receiver_x, picks.receiver_z])
+    origins, origin_index, targets_xz = field_origins(picks, reciprocity)
+    reciprocal = bool(reciprocity and len(origins) < len(picks.sources()[0]))
     bad = ~mesh.contains(targets_xz[:, 0], targets_xz[:, 1])
     if np.any(bad):
         k = int(np.flatnonzero(bad)[0])
         raise InputError(f"station at x = {targets_xz[k, 0]:g} m, z = {targets_xz[k, 1]:g} m is outside the ground of the mesh")
     groups = [np.flatnonzero(origin_index == k) for k in range(len(origins))]
-    _SHARED["forward"] = (mesh, slowness, node_speed(mesh, slowness), order, source_radius)
-    tasks = [(origins[k], targets_xz[g]) for k, g in enumerate(groups)]
-    out = np.empty(len(picks))
-    fallbacks = []
-    try:
-        for k, (times, fell) in enumerate(_map(_solve_group, tasks, workers)):
-            out[groups[k]] = times
-            if fell:
-                fallbacks.append(tuple(float(v) for v in origins[k]))
+    # a few origins per task: each task carries the grids, and the progress count moves
+    with Workers(workers) as pool:
+        per_task = 1 if pool.n == 1 else max(1, len(groups) // (4 * pool.n))
+        bunches = [list(range(k, min(k + per_task, len(groups)))) for k in range(0, len(groups), per_task)]
+        tasks = [(mesh, slowness, origins[b], [targets_xz[groups[k]] for k in b], order, source_radius)
+                 for b in bunches]
+        out = np.empty(len(picks))
+        fallbacks = []
+        done = 0
+        for bunch, results in zip(bunches, pool.imap(_solve_group, tasks)):
+            for k, (times, fell) in zip(bunch, results):
+                out[groups[k]] = times
+                if fell:
+                    fallbacks.append(tuple(float(v) for v in origins[k]))
+            done += len(bunch)
             if progress is not None:
-                progress(k + 1, len(tasks))
-    finally:
-        _SHARED.pop("forward", None)
+                progress(done, len(groups))
     if not np.all(np.isfinite(out)):
         raise SolverError("some stations were not reached by the wavefront (isolated by the air mask?)")
-    return ForwardResult(out, len(tasks), reciprocal, fallbacks)
-
-
-def _map(func, tasks, workers):
-    """Map over tasks in order, in ``workers`` forked processes when that is > 1."""
-    workers = min(int(workers or 1), len(tasks), os.cpu_count() or 1)
-    if workers <= 1:
-        for task in tasks:
-            yield func(task)
-        return
-    ctx = mp.get_context("fork")
-    with ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
-        yield from pool.map(func, tasks, chunksize=max(1, len(tasks) // (4 * workers)))
+    return ForwardResult(out, len(groups), reciprocal, fallbacks)

@@ -60,6 +60,11 @@ class Mesh:
     refine: int
     terrain: Terrain
 
+    def __reduce__(self):
+        # pickle the defining numbers only, not the cached node arrays and matrices:
+        # meshes travel to worker processes with every task
+        return (Mesh, (self.x0, self.z_top, self.cell, self.nx, self.nz, self.refine, self.terrain))
+
     # --- model grid -------------------------------------------------------------
     @property
     def shape(self):
