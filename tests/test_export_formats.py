@@ -181,3 +181,18 @@ def test_export_refusals_leave_no_output(tmp_path, mapped, capsys):
     write_run(no_layers, replace(run, layered=None))
     assert main(["export", str(no_layers), "--dxf", str(tmp_path / "s.dxf")]) == 2
     assert "give --contour V" in capsys.readouterr().err and not (tmp_path / "s.dxf").exists()
+
+
+def test_report_describes_the_line_on_the_map(mapped):
+    from tomo.results.report import build_report
+
+    run, _, _ = mapped
+    text = build_report(run, figure_pngs={})  # no figures: only the text is checked
+    side = run.stations.sideways()
+    # 38 stations on 37 m of arc (R = 50 m), a = 37/50 rad: the stations nearest the
+    # arc's middle are 0.5 m of arc from it, so they depart R (cos(0.5/R) - cos(a/2))
+    # = 3.38 m from the chord (plane geometry), 9.1 % of the spread: above the 5 % warning
+    assert side.max_m == pytest.approx(RADIUS_M * (np.cos(0.5 / RADIUS_M) - np.cos(37.0 / RADIUS_M / 2)),
+                                       abs=1e-9)
+    assert "Line on the map" in text and "EPSG:32633" in text and f"{side.max_m:.2f} m" in text
+    assert "a 2-D section misplaces depths" in text
