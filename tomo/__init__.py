@@ -1,6 +1,60 @@
-"""tomo: shallow seismic refraction interpretation (public API; see tomo.api)."""
+"""tomo: shallow seismic refraction interpretation.
+
+First-arrival picks of a line of geophones in; pick QC, a layered interpretation
+(intercept times, delay times) and travel-time tomography out. The public API, flat::
+
+    survey = tomo.read_survey("picks.csv", terrain="terrain.csv")
+    layers = tomo.interpret_layers(survey)
+    run = tomo.invert(survey, layers=layers, out="run.h5")
+    depth_m = run.surface(2100.0).depth_m
+
+Workflow functions (:mod:`tomo.api`): ``read_survey``, ``check_survey``,
+``interpret_layers``, ``read_layers``, ``write_layers``, ``invert``, ``read_run``,
+``compare_runs``, ``plot_run``, ``write_report``, ``write_grid``, ``write_surface``.
+Types: ``Survey``, ``LayeredResult``, ``Run``, ``Surface``, ``InversionSettings``.
+Figures of a run, returning matplotlib figures: ``velocity_section``,
+``coverage_section``, ``traveltime_fit``, ``residual_figure``, ``misfit_history``,
+``layered_vs_gridded``, ``versus_figure``.
+
+Every name is imported on first use (module ``__getattr__``), so ``import tomo`` stays
+light: it loads neither matplotlib nor h5py until a figure or a run file is asked for.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import Any
 
 from .core.errors import InputError, SolverError, TomoError
 from .core.version import __version__
 
-__all__ = ["__version__", "TomoError", "InputError", "SolverError"]
+#: Public name -> module that defines it (imported when the name is first used).
+_LAZY = {
+    **{name: "tomo.api" for name in (
+        "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile",
+        "invert", "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface",
+        "default_settings", "Survey", "Run", "LayeredResult", "InversionSettings")},
+    "Surface": "tomo.analysis.surface",
+    "velocity_section": "tomo.figures.section",
+    "coverage_section": "tomo.figures.section",
+    "traveltime_fit": "tomo.figures.fit",
+    "residual_figure": "tomo.figures.fit",
+    "misfit_history": "tomo.figures.fit",
+    "layered_vs_gridded": "tomo.figures.compare",
+    "versus_figure": "tomo.figures.versus",
+}
+
+__all__ = ["__version__", "TomoError", "InputError", "SolverError", *_LAZY]
+
+
+def __getattr__(name: str) -> Any:
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module 'tomo' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value  # later look-ups skip this function
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))

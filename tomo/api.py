@@ -1,108 +1,383 @@
 """The public Python API: whole steps of the workflow, from files or arrays to results.
 
-The command line calls only these functions; a notebook can too. Every function here
-uses the same defaults as the command of the same name.
+A session in a notebook::
+
+    import tomo
+
+    survey = tomo.read_survey("picks.csv", terrain="terrain.csv")
+    layers = tomo.interpret_layers(survey)          # intercept-time and delay-time layers
+    run = tomo.invert(survey, layers=layers)        # tomography from those layers
+    bedrock = run.surface(2100.0)                   # the 2100 m/s surface, depth in m
+    print(run.chi2, bedrock.depth_m)
+
+The command line calls only these functions (``tomo/cli``), so both use one set of
+defaults, each defined once: the model cell (half the station spacing,
+:func:`tomo.survey.meshspec.inversion_mesh_spec`), the pick sigma where a pick file has
+none (:class:`InversionSettings`), the smoothing of the layered start
+(:data:`START_SMOOTHING_CELLS`). Progress goes to a callback or, without one, to the
+``logging`` logger ``"tomo"``; nothing here prints. Figures and reports import
+matplotlib when they are asked for, not before.
 """
 
 from __future__ import annotations
 
+import inspect
+import logging
+import os
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Literal
+
 from .core.errors import InputError, TomoError
-from .layered.branches import check_branch_count
-from .results.runfile import RunWriter
+from .core.fileio import check_output_path, prepare_folder
+from .layered.branches import MAX_BRANCHES, check_branch_count
+from .layered.interpret import interpret_line
+from .layered.qc import QCReport, check_line
+from .layered.result import LayeredResult
+from .results.layersfile import check_layers_match
+from .results.layersfile import read_layers as _read_layers_file
+from .results.layersfile import write_layers as _write_layers_file
+from .results.run import Run
 from .survey.geometry import station_spacing
-from .survey.line import read_line
-from .survey.meshspec import inversion_mesh_spec, read_mesh_spec
-from .survey.terrain import terrain_from_stations
-from .tomography.inversion import InversionSettings, invert
-from .tomography.mesh import mesh_for_picks
+from .survey.meshspec import MeshSpec, inversion_mesh_spec, read_mesh_spec
+from .survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
+from .tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
+from .tomography.inversion import invert as _invert
+from .tomography.mesh import Mesh, mesh_for_picks
 from .tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
 
-__all__ = ["run_inversion"]
+if TYPE_CHECKING:
+    from .analysis.surface import Surface
+
+__all__ = ["NO_TERRAIN_NOTE", "read_survey", "check_survey", "interpret_layers", "write_layers", "read_layers",
+           "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
+           "QC_DEFAULTS", "LAYERS_DEFAULTS", "MAX_BRANCHES", "check_branch_count", "synthesize",
+           "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels", "write_report",
+           "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport", "InversionSettings",
+           "IterationInfo", "InversionInterrupted", "check_output_path"]
+
+#: Gaussian smoothing of the layered start, model cells (about one station spacing).
+START_SMOOTHING_CELLS = LAYERED_SMOOTHING_CELLS
+#: The starting models :func:`invert` knows.
+STARTS = ("layered", "gradient")
+
+logger = logging.getLogger("tomo")
 
 
-def run_inversion(picks_path, terrain_path=None, mesh_path=None, start="layered", out_path="run.h5",
-                  progress=None, branches=None, start_smoothing=None, stations_path=None, crs=None, **settings):
-    """Read the files, build the mesh and starting model, invert, write the run file.
+def _defaults(function: Callable[..., object]) -> dict[str, Any]:
+    """The keyword defaults of ``function``: read from its signature, so they are defined once."""
+    return {name: p.default for name, p in inspect.signature(function).parameters.items()
+            if p.default is not inspect.Parameter.empty}
 
-    Parameters
-    ----------
-    picks_path : str or Path
-        Pick file (CSV).
-    terrain_path, mesh_path : str or Path, optional
-        Terrain file (CSV) and mesh spec (TOML); the mesh is otherwise chosen from the
-        survey (``tomo.mesh.mesh_for_picks``).
-    start : {"layered", "gradient"}
-        Starting model: from the layered interpretation (``tomo.layered``) or a 1-D
-        velocity-depth gradient fitted to the picks (``tomo.starting``).
-    out_path : str or Path
-        Run file, rewritten after every finished iteration.
-    progress : callable, optional
-        See :func:`invert`.
-    branches : int, optional
-        Travel-time branches on every side for the layered start
-        (``tomo.starting.layered_start``; default: chosen by the BIC).
-    start_smoothing : float, optional
-        Gaussian smoothing of the layered start, model cells (default
-        ``tomo.starting.LAYERED_SMOOTHING_CELLS``; 0: the sharp layers).
-    stations_path : str or Path, optional
-        Stations file (``tomo.survey.stations``): distances along the surveyed line,
-        the ground from its elevations, and the line recorded in the run for exports.
-    crs : int or str, optional
-        EPSG code of the stations' easting and northing.
-    **settings
-        Fields of :class:`InversionSettings`.
+
+#: Defaults of :func:`check_survey` (and ``tomo check``).
+QC_DEFAULTS = _defaults(check_line)
+#: Defaults of :func:`interpret_layers` (and ``tomo layers``).
+LAYERS_DEFAULTS = _defaults(interpret_line)
+
+PathLike = str | os.PathLike
+
+
+def default_settings() -> InversionSettings:
+    """Every inversion setting at its default (the values ``tomo invert --help`` shows)."""
+    return InversionSettings()
+
+
+def check_survey(survey: Survey, **options: Any) -> QCReport:
+    """Pick QC of a survey: counts, spacing, reciprocal times, outliers, unreversed shots.
+
+    ``options`` are those of :func:`tomo.layered.qc.check_line` (``reciprocal_tol_ms``,
+    ``reciprocal_tol_pct`` in %, ``outlier_sigma``, ``sigma_ms``). ``str`` lines for a
+    person: ``report.summary_lines()``.
+    """
+    return check_line(survey.picks, **options)
+
+
+def interpret_layers(survey: Survey, **options: Any) -> LayeredResult:
+    """The layered interpretation of a survey (velocity assumed to increase with depth).
+
+    Travel-time branches per shot side, the intercept-time and dipping-layer formulas
+    (Telford, Geldart & Sheriff 1990, Applied Geophysics, sec. 4.3) and delay-time
+    refractor depths under the geophones (plus-minus, Hagedoorn 1959; GRM, Palmer
+    1980, with ``grm=True``). ``options`` are the keyword arguments of
+    :func:`tomo.layered.interpret.interpret_line` (``n_branches``, ``breaks_m``,
+    ``sigma_ms``, ...), at the same defaults as ``tomo layers``.
 
     Returns
     -------
-    RunData
+    LayeredResult
+        Layer velocities (m/s) and thicknesses (m), per-shot fits, the delay-time
+        profile, warnings and the cautions that go with every layered result.
     """
+    return interpret_line(survey.picks, terrain=survey.terrain, **options)
+
+
+def read_layers(path: PathLike, survey: Survey | None = None) -> LayeredResult:
+    """Read a layers file (``tomo layers --out``); with ``survey``, also check that it
+    was made from these picks (InputError naming the file otherwise)."""
+    result = _read_layers_file(path)
+    if survey is not None:
+        check_layers_match(result, survey.picks, path)
+    return result
+
+
+def write_layers(result: LayeredResult, path: PathLike) -> Path:
+    """Write a layered interpretation as a layers file (JSON, the content of
+    :meth:`LayeredResult.to_dict`), atomically; :func:`read_layers` reads it back."""
+    return _write_layers_file(path, result)
+
+
+def write_profile(result: LayeredResult, path: PathLike) -> int:
+    """Write the delay-time refractor depths per geophone as CSV (header only when the
+    result has no profile); returns the number of rows."""
+    import numpy as np
+
+    from .layered.profile import RefractorProfile, write_profile_csv
+
+    profile: Any = result.profile
+    if profile is None:
+        empty = np.zeros(0)
+        profile = RefractorProfile(np.zeros(0, int), empty, empty, empty, empty, empty, empty, np.zeros(0, object))
+    write_profile_csv(path, profile)
+    return len(profile)
+
+
+def synthesize(model: PathLike, layout: PathLike, out: PathLike, terrain: PathLike | None = None,
+               mesh: PathLike | None = None, noise_ms: float = 0.0, seed: int | None = None, workers: int = 1,
+               progress: Callable[[int, int], object] | None = None) -> tuple[Any, dict[str, Any]]:
+    """Synthetic first-arrival picks through a layered model file (TOML) for the pairs of
+    a layout file, with Gaussian noise of ``noise_ms`` (ms, seeded); writes the pick file
+    ``out`` atomically. Returns the Picks and a dict (mesh, notices, fallbacks, shots).
+    See :func:`tomo.tomography.synth.synthesize`."""
+    from .tomography.synth import synthesize as synth
+
+    return synth(model, layout, out, terrain=terrain, mesh=mesh, noise_ms=noise_ms, seed=seed, workers=workers,
+                 progress=progress)
+
+
+def _settings(values: dict[str, Any]) -> InversionSettings:
     try:
-        opts = InversionSettings.from_dict(settings).check()
+        return InversionSettings.from_dict(values).check()
     except TypeError as exc:
         raise InputError(f"bad setting: {exc}") from None
-    line = read_line(picks_path, terrain_path, stations_path, crs)
-    picks, terrain = line.picks, line.terrain
-    notes = list(line.notices)
-    if terrain is None:
-        terrain = terrain_from_stations(picks)
-        if terrain is not None:
-            notes.append("no terrain file: the ground is drawn through the station elevations")
-    spec = inversion_mesh_spec(station_spacing(picks), read_mesh_spec(mesh_path) if mesh_path else None)
-    mesh, spec = mesh_for_picks(picks, terrain, spec)
-    layered = None
-    if start not in ("layered", "gradient"):
+
+
+def _mesh(survey: Survey, terrain: Any, mesh: PathLike | MeshSpec | None) -> tuple[Mesh, MeshSpec, str | None]:
+    """The model grid from a mesh spec file, a MeshSpec or the survey's defaults."""
+    spec = mesh if isinstance(mesh, MeshSpec) else (read_mesh_spec(mesh) if mesh is not None else None)
+    spec = inversion_mesh_spec(station_spacing(survey.picks), spec)
+    grid, spec = mesh_for_picks(survey.picks, terrain, spec)
+    return grid, spec, (None if mesh is None or isinstance(mesh, MeshSpec) else str(mesh))
+
+
+def _check_start(start: str, layers: Any, branches: int | None, start_smoothing: float | None) -> float:
+    """Check the starting-model options together; returns the smoothing, cells."""
+    if start not in STARTS:
         raise InputError(f"unknown starting model {start!r} (expected 'layered' or 'gradient')", field="start")
     if branches is not None:
         if start != "layered":
             raise InputError("branches apply to the layered start only", field="branches")
+        if layers is not None:
+            raise InputError("branches choose how the picks are read into layers; given layers are read already",
+                             field="branches")
         check_branch_count(branches)
+    if layers is not None and start != "layered":
+        raise InputError("given layers apply to the layered start only", field="layers")
     if start_smoothing is not None and start != "layered":
         raise InputError("start smoothing applies to the layered start only (the gradient start is smooth)",
                          field="start_smoothing")
-    smoothing = LAYERED_SMOOTHING_CELLS if start_smoothing is None else check_smoothing(start_smoothing)
-    start_used = start
+    return START_SMOOTHING_CELLS if start_smoothing is None else check_smoothing(start_smoothing)
+
+
+def _log_progress(info: IterationInfo) -> None:
+    logger.info("%s", info)
+
+
+def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
+           layers: LayeredResult | PathLike | None = None, mesh: PathLike | MeshSpec | None = None,
+           out: PathLike | None = None, progress: Callable[[IterationInfo], object] | None = None, *,
+           branches: int | None = None, start_smoothing: float | None = None, **settings: Any) -> Run:
+    """Travel-time tomography of a survey, to the noise level of its picks.
+
+    Regularised Gauss-Newton updates with rays through fast-marching travel times,
+    until chi-squared = mean((residual / sigma)^2) reaches 1 (the discrepancy
+    principle; Constable, Parker & Constable 1987, Geophysics 52); see
+    :mod:`tomo.tomography.inversion`.
+
+    Parameters
+    ----------
+    survey : Survey
+        From :func:`read_survey`.
+    start : {"layered", "gradient"}
+        Starting model: the layered interpretation painted on the grid and smoothed,
+        or a 1-D velocity-depth gradient fitted to the picks (Slotnick 1959). A line
+        the layered methods cannot read falls back to the gradient start (noted).
+    layers : LayeredResult or path, optional
+        Start from this layered interpretation (or layers file) of the same picks
+        instead of interpreting them again.
+    mesh : path or MeshSpec, optional
+        Mesh spec (TOML) or spec; unset fields come from the survey (cells of half the
+        station spacing, depth a third of the longest offset).
+    out : path, optional
+        Run file (HDF5), rewritten after every finished iteration, so an interrupted
+        run keeps the last finished one.
+    progress : callable, optional
+        Called with an :class:`IterationInfo` (``str()`` is one line) after the start
+        and each iteration; default: logged at INFO level to the logger ``"tomo"``.
+    branches : int, optional
+        Travel-time branches on every side for the layered start (default: chosen by
+        the BIC).
+    start_smoothing : float, optional
+        Gaussian smoothing of the layered start, model cells (default
+        :data:`START_SMOOTHING_CELLS`; 0 keeps the sharp layers).
+    **settings
+        Fields of :class:`InversionSettings` (``max_iterations``, ``default_sigma_ms``,
+        ``smooth_x``, ``workers``, ...).
+
+    Returns
+    -------
+    Run
+        The model (m/s), its fit, history and every setting; ``run.surface(v)`` reads
+        an iso-velocity surface, ``run.write(path)`` saves it.
+
+    Raises
+    ------
+    InputError
+        For a bad setting, mesh spec, layers file or starting-model option.
+    InversionInterrupted
+        On Ctrl-C (a KeyboardInterrupt); ``out`` then holds the last finished iteration.
+    """
+    opts = _settings(settings)
+    smoothing = _check_start(start, layers, branches, start_smoothing)
+    layers_file = None
+    if layers is not None and not isinstance(layers, LayeredResult):
+        layers_file = str(layers)
+        layers = read_layers(layers, survey)
+    elif layers is not None:
+        check_layers_match(layers, survey.picks)
+    notes = list(survey.notices)
+    terrain, ground_notes = survey.ground()
+    notes += ground_notes
+    grid, spec, mesh_file = _mesh(survey, terrain, mesh)
+    velocity, layered, start_used = None, None, start
     if start == "layered":
         try:
-            velocity, layered = layered_start(picks, mesh, terrain, n_branches=branches, smooth_cells=smoothing)
+            velocity, layered = layered_start(survey.picks, grid, terrain, n_branches=branches,
+                                              smooth_cells=smoothing, result=layers)
         except TomoError as exc:
             # a line the layered methods cannot read still gets a tomogram, from the
             # gradient start, with a note saying so
             notes.append(f"layered starting model not available ({exc}); the gradient start was used")
             start_used = "gradient"
     if start_used == "gradient":
-        velocity, info = gradient_start(picks, mesh, return_fit=True)
+        velocity, info = gradient_start(survey.picks, grid, return_fit=True)
         notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
                      f"fitted to the first arrivals")
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
-             "mesh_spec": spec.as_dict(), "picks_file": str(picks_path),
-             "terrain_file": None if terrain_path is None else str(terrain_path),
-             "mesh_file": None if mesh_path is None else str(mesh_path),
-             "stations_file": None if stations_path is None else str(stations_path)}
-    result = invert(picks, mesh, velocity, opts, progress=progress,
-                    checkpoint=None if out_path is None else RunWriter(out_path, stations=line.stations),
-                    layered=layered, notes=notes, extra_settings=extra)
-    result.stations = line.stations
-    return result
+             "mesh_spec": spec.as_dict(), "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,
+             "mesh_file": mesh_file, "stations_file": survey.stations_path}
+    if layers is not None:
+        extra["layers_file"] = layers_file
+    from .results.runfile import RunWriter
+
+    # the stations are not the inversion's business but go into every run file written
+    checkpoint = None if out is None else RunWriter(out, stations=survey.stations)
+    data = _invert(survey.picks, grid, velocity, opts, progress=progress or _log_progress, checkpoint=checkpoint,
+                   layered=layered, notes=notes, extra_settings=extra)
+    data.stations = survey.stations
+    return Run.from_data(data)
 
 
+def read_run(path: PathLike) -> Run:
+    """Read a run file (HDF5) written by :func:`invert` or ``tomo invert``."""
+    return Run.read(path)
+
+
+def run_labels(path: PathLike, run: Run, other_path: PathLike, other: Run) -> tuple[str, str]:
+    """Legend names of two runs: their file names with their starting models."""
+    from .figures.versus import run_labels as labels
+
+    return labels(path, run, other_path, other)
+
+
+def compare_runs(run: Run, other: Run, contour_m_s: float | None = None,
+                 labels: Sequence[str] | None = None) -> str:
+    """One line comparing the ``contour_m_s`` surface (m/s; default: the layered
+    result's deepest refractor contour) of two runs of the same picks: mean, RMS and
+    largest difference, m, over the columns both constrain."""
+    from .figures.versus import LABELS, versus_summary, versus_table
+
+    labels = tuple(labels or LABELS)
+    return versus_summary(versus_table(run, other, contour_m_s, labels), labels)
+
+
+def plot_qc(survey: Survey, report: QCReport, path: PathLike) -> Path:
+    """Save the travel-time curves with the picks QC flagged (PNG or PDF by extension)."""
+    from .figures.curves import qc_figure
+
+    qc_figure(survey.picks, report, path)
+    return Path(path)
+
+
+def plot_branches(result: LayeredResult, path: PathLike, survey: Survey | None = None) -> Path:
+    """Save the picks with their fitted branches per shot (PNG or PDF by extension)."""
+    from .figures.curves import branches_figure
+
+    branches_figure(result, path, picks=None if survey is None else survey.picks)
+    return Path(path)
+
+
+def plot_run(run: Run, out_dir: PathLike, formats: Sequence[str] = ("png", "pdf"), other: Run | None = None,
+             contour_m_s: float | None = None, labels: Sequence[str] | None = None,
+             skip_note: Callable[[str], object] | None = None) -> list[Path]:
+    """Save every figure of a run into ``out_dir`` as ``<name>.<format>``; with
+    ``other`` (a second run of the same picks) also the ``versus`` figure. A failure
+    leaves no partial set. Returns the files written."""
+    from .figures.bundle import plot_run as save_all
+    from .figures.versus import LABELS, versus_figure
+
+    extra = []
+    if other is not None:
+        extra.append(("versus", versus_figure(run, other, contour_m_s, tuple(labels or LABELS))))
+    return save_all(run, out_dir, formats=tuple(formats), skip_note=skip_note, extra=extra)
+
+
+def write_report(run: Run, path: PathLike, source: PathLike | None = None, other: Run | None = None,
+                 contour_m_s: float | None = None, labels: Sequence[str] | None = None,
+                 figure_pngs: dict[str, bytes] | None = None,
+                 skip_note: Callable[[str], object] | None = None) -> Path:
+    """Write one self-contained HTML report of a run (figures embedded, cautions
+    included), atomically; ``figure_pngs`` (name -> PNG bytes) reuses figures already
+    drawn. Returns the path."""
+    from .results.report import write_report as write
+
+    return write(path, run, source=None if source is None else str(source), skip_note=skip_note,
+                 figure_pngs=figure_pngs, other=other, labels=labels, contour_m_s=contour_m_s)
+
+
+def add_boreholes(run: Run, path: PathLike | None) -> Run:
+    """``run`` with the boreholes of the file ``path`` (:mod:`tomo.survey.boreholes`)
+    placed on its line, replacing any it held; unchanged when ``path`` is None."""
+    if path is None:
+        return run
+    from .analysis.boreholes import place_boreholes
+    from .survey.boreholes import read_boreholes
+
+    run.boreholes = place_boreholes(read_boreholes(path), run)
+    return run
+
+
+def write_grid(run: Run, path: PathLike, source: PathLike | None = None) -> int:
+    """Write ``x, z, velocity_m_s, coverage_m`` per ground cell as CSV; returns the rows."""
+    from .results.export import write_grid as write
+
+    return write(path, run, source=None if source is None else str(source))
+
+
+def write_surface(run: Run, surface: Surface, path: PathLike, source: PathLike | None = None) -> Surface:
+    """Write ``x, ground_z, depth_m, elevation_m, constrained`` of ``surface`` (from
+    :meth:`Run.surface`) as CSV, atomically."""
+    from .results.export import write_surface as write
+
+    return write(path, run, surface.velocity_m_s, source=None if source is None else str(source), surface=surface)

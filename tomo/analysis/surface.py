@@ -9,15 +9,56 @@ whether it lies above the depth of investigation (:mod:`tomo.analysis.coverage`)
 
 from __future__ import annotations
 
+from dataclasses import dataclass, fields
+
 import numpy as np
 
 from ..core.errors import InputError
 from .coverage import ground_elevation, investigation_elevation
 
-__all__ = ["check_contour", "contour_surface"]
+__all__ = ["Surface", "check_contour", "contour_surface"]
 
 
-def check_contour(run, velocity_m_s):
+@dataclass(frozen=True)
+class Surface:
+    """An iso-velocity surface of a run, one value per model column.
+
+    Attributes
+    ----------
+    velocity_m_s : float
+        The velocity of the surface, m/s.
+    x : ndarray
+        Cell-centre distance along the line, m.
+    ground_z : ndarray
+        Ground elevation at ``x``, m.
+    depth_m : ndarray
+        Depth of the surface, vertically below the ground, m; NaN where the column
+        never reaches the velocity.
+    elevation_m : ndarray
+        Elevation of the surface, m; NaN where the column never reaches the velocity.
+    constrained : ndarray of bool
+        The surface lies above the depth of investigation (rays decide it there).
+
+    Notes
+    -----
+    ``surface["depth_m"]`` reads a field as ``surface.depth_m`` does (kept for code
+    written when the surface was a dict).
+    """
+
+    velocity_m_s: float
+    x: np.ndarray
+    ground_z: np.ndarray
+    depth_m: np.ndarray
+    elevation_m: np.ndarray
+    constrained: np.ndarray
+
+    def __getitem__(self, name: str):
+        if name not in {f.name for f in fields(self)}:
+            raise KeyError(name)
+        return getattr(self, name)
+
+
+def check_contour(run, velocity_m_s: float) -> float:
     """Raise InputError unless ``velocity_m_s`` lies strictly inside the model's range."""
     v = np.asarray(run.velocity, float)
     lo, hi = float(np.nanmin(v)), float(np.nanmax(v))
@@ -29,7 +70,7 @@ def check_contour(run, velocity_m_s):
     return value
 
 
-def contour_surface(run, velocity_m_s):
+def contour_surface(run, velocity_m_s: float) -> Surface:
     """The ``velocity_m_s`` iso-velocity surface, column by column.
 
     In each column the model is read downward from the ground; the surface is the
@@ -37,12 +78,18 @@ def contour_surface(run, velocity_m_s):
     cell centres that bracket it. A column whose top ground cell is already faster is
     placed at that cell's centre.
 
+    Parameters
+    ----------
+    run : RunData
+        The run (its final model, m/s, and ray coverage).
+    velocity_m_s : float
+        Velocity of the surface, m/s, strictly inside the model's range.
+
     Returns
     -------
-    dict
-        ``x`` (m), ``ground_z`` (m), ``depth_m``, ``elevation_m`` (NaN where the column
-        never reaches the velocity) and ``constrained`` (bool: the surface lies above
-        the depth of investigation, :func:`investigation_elevation`).
+    Surface
+        ``constrained`` is true where the surface lies above the depth of
+        investigation (:func:`investigation_elevation`).
 
     Raises
     ------
@@ -74,5 +121,5 @@ def contour_surface(run, velocity_m_s):
         elevation[j] = z[a] + frac * (z[b] - z[a])
     with np.errstate(invalid="ignore"):
         constrained = np.isfinite(elevation) & (elevation >= doi)
-    return {"x": np.asarray(run.x, float), "ground_z": ground_z, "depth_m": ground_z - elevation,
-            "elevation_m": elevation, "constrained": constrained}
+    return Surface(velocity_m_s=value, x=np.asarray(run.x, float), ground_z=ground_z,
+                   depth_m=ground_z - elevation, elevation_m=elevation, constrained=constrained)

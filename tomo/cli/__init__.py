@@ -84,15 +84,14 @@ def add_versus_options(parser, what):
 
 def read_versus(args):
     """The run files of ``args.run_file`` and ``--versus``: (run, other or None, labels or None)."""
+    from .. import api
     from ..core.errors import InputError
-    from ..figures.versus import run_labels
-    from ..results.runfile import read_run
 
     if args.contour is not None and args.versus is None:
         raise InputError("--contour is the velocity of the surface compared with --versus; give --versus OTHER.h5",
                          field="--contour")
-    run = read_run(args.run_file)
+    run = api.read_run(args.run_file)
     if args.versus is None:
         return run, None, None
-    other = read_run(args.versus)
-    return run, other, run_labels(args.run_file, run, args.versus, other)
+    other = api.read_run(args.versus)
+    return run, other, api.run_labels(args.run_file, run, args.versus, other)

@@ -4,16 +4,20 @@ from __future__ import annotations
 
 import sys
 
-#: Defaults shown in --help come from the library's own settings.
-from ..tomography.inversion import InversionSettings as _Settings
-from ..tomography.starting import LAYERED_SMOOTHING_CELLS
 from . import note
-from .line_options import add_line_options
+from .line_options import add_line_options, read_survey_args
 
-_D = _Settings()
+#: Inversion settings the command line sets: option dest -> InversionSettings field.
+#: Options left out take the library's default (shown in --help from the same place).
+SETTINGS = {"max_iterations": "max_iterations", "chi2_target": "chi2_target", "sigma_ms": "default_sigma_ms",
+            "parameter": "parameter", "smooth_x": "smooth_x", "smooth_z": "smooth_z", "damping": "damping",
+            "v_min": "v_min_m_s", "v_max": "v_max_m_s", "workers": "workers"}
 
 
 def register(sub):
+    from ..api import START_SMOOTHING_CELLS, STARTS, default_settings
+
+    d = default_settings()
     p = sub.add_parser(
         "invert", help="invert first-arrival picks for a gridded velocity section",
         description="Travel-time tomography: the smoothest velocity model that fits the picks to "
@@ -28,39 +32,42 @@ def register(sub):
     add_line_options(p)
     p.add_argument("--mesh", metavar="MESH.toml",
                    help="mesh spec (default: cells of half the station spacing, chosen from the survey)")
-    p.add_argument("--start", choices=["layered", "gradient"], default="layered",
+    p.add_argument("--start", choices=list(STARTS), default=STARTS[0],
                    help="starting model: the layered interpretation (default) or a 1-D "
                         "velocity-depth gradient fitted to the picks")
     p.add_argument("--branches", type=int, metavar="N",
                    help="travel-time branches on every side for the layered start, as in "
                         "'tomo layers --branches' (default: chosen by the BIC)")
+    p.add_argument("--layers", metavar="layers.json",
+                   help="start from this layered interpretation of the same picks ('tomo layers --out') "
+                        "instead of interpreting them again")
     p.add_argument("--start-smoothing", type=float, metavar="CELLS",
                    help="Gaussian smoothing of the layered start, in model cells (default "
-                        f"{LAYERED_SMOOTHING_CELLS:g}, about one station spacing; 0 keeps the sharp layers, "
+                        f"{START_SMOOTHING_CELLS:g}, about one station spacing; 0 keeps the sharp layers, "
                         "which the tomography moves poorly)")
     p.add_argument("--out", default="run.h5", metavar="RUN.h5", help="run file to write (default run.h5)")
     g = p.add_argument_group("inversion settings (defaults suit a typical line)")
-    g.add_argument("--max-iterations", metavar="N", type=int, default=_D.max_iterations, help=f"most iterations (default {_D.max_iterations})")
-    g.add_argument("--chi2-target", metavar="X", type=float, default=_D.chi2_target,
-                   help=f"target of mean((residual/sigma)^2) (default {_D.chi2_target:g})")
-    g.add_argument("--sigma-ms", metavar="MS", type=float, default=_D.default_sigma_ms,
-                   help=f"pick uncertainty where the pick file has no sigma_ms, ms (default {_D.default_sigma_ms:g})")
-    g.add_argument("--parameter", choices=["logv", "slowness"], default=_D.parameter,
-                   help=f"model parameter (default {_D.parameter})")
-    g.add_argument("--smooth-x", metavar="W", type=float, default=_D.smooth_x,
-                   help=f"weight of horizontal smoothing (default {_D.smooth_x:g})")
-    g.add_argument("--smooth-z", metavar="W", type=float, default=_D.smooth_z,
-                   help=f"weight of vertical smoothing (default {_D.smooth_z:g})")
-    g.add_argument("--damping", metavar="W", type=float, default=_D.damping,
+    g.add_argument("--max-iterations", metavar="N", type=int, help=f"most iterations (default {d.max_iterations})")
+    g.add_argument("--chi2-target", metavar="X", type=float,
+                   help=f"target of mean((residual/sigma)^2) (default {d.chi2_target:g})")
+    g.add_argument("--sigma-ms", metavar="MS", type=float,
+                   help=f"pick uncertainty where the pick file has no sigma_ms, ms (default {d.default_sigma_ms:g})")
+    g.add_argument("--parameter", choices=["logv", "slowness"],
+                   help=f"model parameter (default {d.parameter})")
+    g.add_argument("--smooth-x", metavar="W", type=float,
+                   help=f"weight of horizontal smoothing (default {d.smooth_x:g})")
+    g.add_argument("--smooth-z", metavar="W", type=float,
+                   help=f"weight of vertical smoothing (default {d.smooth_z:g})")
+    g.add_argument("--damping", metavar="W", type=float,
                    help="weight of damping toward the starting model, relative to the smoothing "
-                        f"(default {_D.damping:g}: off, so the start leaves nothing of itself where the "
+                        f"(default {d.damping:g}: off, so the start leaves nothing of itself where the "
                         "picks are silent)")
-    g.add_argument("--v-min", type=float, default=None, metavar="M_S",
+    g.add_argument("--v-min", type=float, metavar="M_S",
                    help="lowest velocity allowed, m/s (default: min(150, half the starting minimum))")
-    g.add_argument("--v-max", type=float, default=None, metavar="M_S",
+    g.add_argument("--v-max", type=float, metavar="M_S",
                    help="highest velocity allowed, m/s (default: max(7000, twice the starting maximum))")
-    g.add_argument("--workers", metavar="N", type=int, default=_D.workers,
-                   help=f"processes for forward solves and rays (default {_D.workers})")
+    g.add_argument("--workers", metavar="N", type=int,
+                   help=f"processes for forward solves and rays (default {d.workers})")
     p.set_defaults(run=run)
 
 
@@ -70,20 +77,15 @@ def _print_progress(info):
 
 
 def run(args):
-    from ..api import run_inversion
-    from ..tomography.inversion import InversionInterrupted
+    from .. import api
+    from ..api import InversionInterrupted
 
-    settings = dict(
-        max_iterations=args.max_iterations, chi2_target=args.chi2_target,
-        default_sigma_ms=args.sigma_ms, parameter=args.parameter, smooth_x=args.smooth_x,
-        smooth_z=args.smooth_z, damping=args.damping, v_min_m_s=args.v_min, v_max_m_s=args.v_max,
-        workers=args.workers,
-    )
+    settings = {field: getattr(args, dest) for dest, field in SETTINGS.items() if getattr(args, dest) is not None}
+    survey = read_survey_args(args)
     try:
-        result = run_inversion(args.picks, terrain_path=args.terrain, mesh_path=args.mesh, start=args.start,
-                               out_path=args.out, progress=_print_progress, branches=args.branches,
-                               start_smoothing=args.start_smoothing, stations_path=args.stations, crs=args.crs,
-                               **settings)
+        result = api.invert(survey, start=args.start, layers=args.layers, mesh=args.mesh, out=args.out,
+                            progress=_print_progress, branches=args.branches, start_smoothing=args.start_smoothing,
+                            **settings)
     except InversionInterrupted as exc:
         print(f"tomo invert: {exc.message}", file=sys.stderr)
         return 130

@@ -2,15 +2,15 @@
 
 from __future__ import annotations
 
-import json
 import math
 
 from . import note
-from .line_options import add_line_options, read_line_args
+from .line_options import add_line_options, read_survey_args
 
 
 def register(sub):
-    from ..layered.branches import DEFAULT_SIGMA_MS, MAX_BRANCHES
+    from ..api import LAYERS_DEFAULTS as d
+    from ..api import MAX_BRANCHES
 
     p = sub.add_parser(
         "layers", help="layered interpretation (intercept times, dips, delay times)",
@@ -33,17 +33,21 @@ def register(sub):
                    help=f"most branches the criterion may choose (default {MAX_BRANCHES})")
     p.add_argument("--breaks", metavar="B1,B2,...", help="break offsets |x| (m) between branches on every side")
     p.add_argument("--side-branches", action="append", default=[], metavar="X:SIDE:N",
-                   help="branch count for one side: shot x (m), left|right, N (repeatable; write --side-branches=-5:right:3 for a negative x)")
+                   help="branch count for one side: shot x (m), left|right, N (repeatable; write "
+                        "--side-branches=-5:right:3 for a negative x)")
     p.add_argument("--side-breaks", action="append", default=[], metavar="X:SIDE:B1,B2",
                    help="break offsets (m) for one side (repeatable)")
-    p.add_argument("--sigma-ms", type=float, default=DEFAULT_SIGMA_MS, metavar="MS",
-                   help=f"pick sigma when the file has no sigma_ms column, ms (default {DEFAULT_SIGMA_MS:g})")
-    p.add_argument("--outlier-sigma", type=float, default=4.0, metavar="N",
-                   help="leave out picks this many robust sigmas from their branch and refit (default 4; 0 keeps all)")
-    p.add_argument("--min-contrast-pct", type=float, default=2.0, metavar="PCT",
-                   help="least velocity increase from one branch to the next, %% (default 2)")
-    p.add_argument("--disagree-pct", type=float, default=10.0, metavar="PCT",
-                   help="warn when forward and reverse refractor velocities differ by more, %% (default 10)")
+    p.add_argument("--sigma-ms", type=float, default=d["sigma_ms"], metavar="MS",
+                   help=f"pick sigma when the file has no sigma_ms column, ms (default {d['sigma_ms']:g})")
+    p.add_argument("--outlier-sigma", type=float, default=d["outlier_sigma"], metavar="N",
+                   help="leave out picks this many robust sigmas from their branch and refit "
+                        f"(default {d['outlier_sigma']:g}; 0 keeps all)")
+    p.add_argument("--min-contrast-pct", type=float, default=100.0 * d["min_contrast"], metavar="PCT",
+                   help="least velocity increase from one branch to the next, %% "
+                        f"(default {100 * d['min_contrast']:g})")
+    p.add_argument("--disagree-pct", type=float, default=d["velocity_disagreement_pct"], metavar="PCT",
+                   help="warn when forward and reverse refractor velocities differ by more, %% "
+                        f"(default {d['velocity_disagreement_pct']:g})")
     p.add_argument("--grm", action="store_true", help="also compute the generalized reciprocal method profile")
     p.add_argument("--grm-xy", type=float, metavar="M", help="GRM XY distance, m (default: the optimum)")
     p.add_argument("--no-delay", action="store_true", help="skip the delay-time (plus-minus) profile")
@@ -77,8 +81,8 @@ def _side_key(text, option):
 
 def options_from_args(args):
     """Library keyword arguments from the parsed command line."""
+    from ..api import check_branch_count
     from ..core.errors import InputError
-    from ..layered.branches import check_branch_count
 
     if args.branches is not None:
         check_branch_count(args.branches, "--branches")
@@ -127,41 +131,28 @@ class _DefaultDict(dict):
 
 
 def run(args):
-    from ..layered.interpret import interpret_line
+    from .. import api
 
     options = options_from_args(args)
-    line = read_line_args(args)
-    picks, terrain = line.picks, line.terrain
-    for message in line.notices:
+    survey = read_survey_args(args)
+    for message in survey.notices:
         note(message)
-    result = interpret_line(picks, terrain=terrain, **options)
+    result = api.interpret_layers(survey, **options)
     for message in result.messages:
         note(message.message)
     # outputs first, so that a closed stdout cannot lose them
     written = []
     if args.out:
-        from ..core.fileio import atomic_open
-
-        with atomic_open(args.out, "w", encoding="utf-8") as out:
-            json.dump(result.to_dict(), out, indent=1, allow_nan=False)
-            out.write("\n")
+        api.write_layers(result, args.out)
         written.append(f"wrote {args.out}")
     if args.profile:
-        import numpy as np
-
-        from ..layered.profile import RefractorProfile, write_profile_csv
-
-        prof = result.profile
-        if prof is None:
-            empty = np.zeros(0)
-            prof = RefractorProfile(np.zeros(0, int), empty, empty, empty, empty, empty, empty, np.zeros(0, object))
-            note("no delay-time profile (no refractor reversed at common geophones); the profile file has a header only")
-        write_profile_csv(args.profile, prof)
-        written.append(f"wrote {args.profile} ({len(prof)} rows)")
+        if result.profile is None:
+            note("no delay-time profile (no refractor reversed at common geophones); "
+                 "the profile file has a header only")
+        rows = api.write_profile(result, args.profile)
+        written.append(f"wrote {args.profile} ({rows} rows)")
     if args.figure:
-        from ..figures.curves import branches_figure
-
-        branches_figure(result, args.figure, picks=picks)
+        api.plot_branches(result, args.figure, survey)
         written.append(f"wrote {args.figure}")
     print("layer  velocity (m/s)  thickness (m)  depth to top (m)  reversed")
     for k, lay in enumerate(result.layers, start=1):

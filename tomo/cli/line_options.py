@@ -14,11 +14,11 @@ def add_line_options(parser):
                              "(e.g. 32633 for UTM zone 33N); needed to place exports on the map")
 
 
-def read_line_args(args):
-    """The :class:`tomo.survey.line.LineInput` of ``args.picks`` with ``--terrain``, ``--stations``, ``--crs``."""
-    from ..survey.line import read_line
+def read_survey_args(args):
+    """The :class:`tomo.api.Survey` of ``args.picks`` with ``--terrain``, ``--stations``, ``--crs``."""
+    from ..api import read_survey
 
-    return read_line(args.picks, args.terrain, args.stations, args.crs)
+    return read_survey(args.picks, args.terrain, args.stations, args.crs)
 
 
 def add_boreholes_option(parser):
@@ -31,10 +31,6 @@ def add_boreholes_option(parser):
 
 def with_boreholes(run, path):
     """``run`` with the boreholes of ``path`` placed on its line (unchanged when ``path`` is None)."""
-    if path is None:
-        return run
-    from ..analysis.boreholes import place_boreholes
-    from ..survey.boreholes import read_boreholes
+    from ..api import add_boreholes
 
-    run.boreholes = place_boreholes(read_boreholes(path), run)
-    return run
+    return add_boreholes(run, path)

@@ -23,17 +23,13 @@ def register(sub):
 
 
 def run(args):
-    from ..figures.bundle import plot_run
-    from ..figures.versus import versus_figure, versus_summary, versus_table
+    from .. import api
 
     run_data, other, labels = read_versus(args)
     run_data = with_boreholes(run_data, args.boreholes)
-    extra, summary = [], None
-    if other is not None:
-        summary = versus_summary(versus_table(run_data, other, args.contour, labels), labels)
-        extra.append(("versus", versus_figure(run_data, other, args.contour, labels)))
-    written = plot_run(run_data, args.out, formats=tuple(args.formats or ("png", "pdf")), skip_note=note,
-                       extra=extra)
+    summary = None if other is None else api.compare_runs(run_data, other, args.contour, labels)
+    written = api.plot_run(run_data, args.out, formats=tuple(args.formats or ("png", "pdf")), other=other,
+                           contour_m_s=args.contour, labels=labels, skip_note=note)
     if summary:
         print(summary)
     print(f"wrote {len(written)} figure files to {args.out}")

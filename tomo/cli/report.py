@@ -20,12 +20,12 @@ def register(sub):
 
 
 def run(args):
-    from ..results.report import write_report
+    from .. import api
 
     run_data, other, labels = read_versus(args)
     run_data = with_boreholes(run_data, args.boreholes)
-    path = write_report(args.out, run_data, source=args.run_file, skip_note=note, other=other, labels=labels,
-                        contour_m_s=args.contour)
+    path = api.write_report(run_data, args.out, source=args.run_file, skip_note=note, other=other, labels=labels,
+                            contour_m_s=args.contour)
     size_kb = path.stat().st_size / 1024
     print(f"wrote the report to {path} ({size_kb:.0f} kB)")
     return 0

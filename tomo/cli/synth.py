@@ -32,8 +32,8 @@ def register(sub):
 
 
 def run(args):
+    from ..api import synthesize
     from ..core.errors import InputError
-    from ..tomography.synth import synthesize
 
     if args.noise_ms < 0:
         raise InputError(f"--noise-ms must be >= 0, got {args.noise_ms:g}")

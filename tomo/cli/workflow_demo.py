@@ -1,12 +1,13 @@
 """The demo: the whole workflow on the invented hillside line shipped in ``tomo/data/demo/``.
 
 ``run_demo(out_dir)`` runs, in order, ``tomo check``, ``tomo layers``, ``tomo invert``
-(from the layered start, then once more from the 1-D gradient start, to show how much
-of the section the picks decide), the figures of ``tomo plot`` (with the two runs
-compared) and ``tomo report`` on the demo's ``picks.csv`` and ``terrain.csv``, writing
-everything into ``out_dir``. The check, layers and invert steps go through the command
-line (:func:`tomo.cli.main`), so the demo prints exactly what a user running those
-commands would see.
+(from the layered start, read from the ``layers.json`` of the step before, so the
+layered interpretation is made once; then once more from the 1-D gradient start, to
+show how much of the section the picks decide), the figures of ``tomo plot`` (with the
+two runs compared) and ``tomo report`` on the demo's ``picks.csv`` and ``terrain.csv``,
+writing everything into ``out_dir``. The check, layers and invert steps go through the
+command line (:func:`tomo.cli.main`), so the demo prints exactly what a user running
+those commands would see; the others call :mod:`tomo.api`.
 """
 
 from __future__ import annotations
@@ -98,14 +99,10 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     -------
     DemoResult
     """
-    from ..figures import style
-    from ..figures.bundle import FigureSpec, make_figures, prepare_folder
-    from ..figures.versus import CAPTION, run_labels, versus_figure, versus_summary, versus_table
-    from ..results.report import write_report
-    from ..results.runfile import read_run
+    from .. import api
 
     folder = demo_dir()
-    out = prepare_folder(out_dir)
+    out = api.prepare_folder(out_dir)
     picks, terrain = str(folder / "picks.csv"), str(folder / "terrain.csv")
     timings = {}
     files = []
@@ -129,7 +126,8 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
 
     run_path = out / "run.h5"
     t0 = step(3, "invert", "travel-time tomography from the layered starting model")
-    _invert(picks, terrain, run_path, workers, out / "invert.txt", show_progress=progress is not None)
+    _invert(picks, terrain, run_path, workers, out / "invert.txt", show_progress=progress is not None,
+            layers=out / "layers.json")
     timings["invert"] = time.perf_counter() - t0
     files += [out / "invert.txt", run_path]
 
@@ -142,40 +140,23 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
             start="gradient")
     timings["gradient run"] = time.perf_counter() - t0
     files += [out / "invert-gradient.txt", second_path]
-    run, second = read_run(run_path), read_run(second_path)
-    labels = run_labels(run_path, run, second_path, second)
-    _say(progress, "       " + versus_summary(versus_table(run, second, labels=labels), labels))
+    run, second = api.read_run(run_path), api.read_run(second_path)
+    labels = api.run_labels(run_path, run, second_path, second)
+    _say(progress, "       " + api.compare_runs(run, second, labels=labels))
 
     t0 = step(5, "plot", f"figures into {out}")
-    figures = make_figures(run, skip_note=progress)
-    figures.append((FigureSpec("versus", CAPTION, None), versus_figure(run, second, labels=labels)))
-    pngs = {}
-    try:
-        for spec, fig in figures:
-            for fmt in ("png", "pdf"):
-                path = out / f"{spec.name}.{fmt}"
-                style.save(fig, path) if fmt == "pdf" else _save_keep(fig, path)
-                files.append(path)
-            pngs[spec.name] = (out / f"{spec.name}.png").read_bytes()
-    finally:
-        for _, fig in figures:
-            style.plt.close(fig)
+    written = api.plot_run(run, out, formats=("png", "pdf"), other=second, labels=labels, skip_note=progress)
+    files += written
+    # the report embeds the PNGs just written instead of drawing every figure again
+    pngs = {path.stem: path.read_bytes() for path in written if path.suffix == ".png"}
     timings["plot"] = time.perf_counter() - t0
 
     t0 = step(6, "report", "one self-contained HTML file")
-    report = write_report(out / "report.html", run, source=str(run_path), figure_pngs=pngs, other=second,
-                          labels=labels)
+    report = api.write_report(run, out / "report.html", source=run_path, figure_pngs=pngs, other=second,
+                              labels=labels)
     timings["report"] = time.perf_counter() - t0
     files.append(report)
     return DemoResult(out_dir=out, report=report, run_file=run_path, files=files, timings=timings)
-
-
-def _save_keep(fig, path):
-    """Save a figure atomically without closing it (it is saved again as PDF)."""
-    from ..core.fileio import atomic_path
-
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=Path(path).suffix.lstrip("."), bbox_inches="tight")
 
 
 def _layer_summary(path):
@@ -192,8 +173,10 @@ def _layer_summary(path):
     return "layers: " + ", ".join(parts) + " (velocity assumed to increase with depth)"
 
 
-def _invert(picks, terrain, run_path, workers, log, show_progress=True, start="layered"):
-    """The inversion step through ``tomo invert``; its progress lines stay on screen
-    when ``show_progress``, else they go to the log with the rest."""
-    _cli(["invert", picks, "--terrain", terrain, "--start", start, "--out", str(run_path),
+def _invert(picks, terrain, run_path, workers, log, show_progress=True, start="layered", layers=None):
+    """The inversion step through ``tomo invert`` (from the ``layers`` file when given);
+    its progress lines stay on screen when ``show_progress``, else they go to the log
+    with the rest."""
+    extra = [] if layers is None else ["--layers", str(layers)]
+    _cli(["invert", picks, "--terrain", terrain, "--start", start, *extra, "--out", str(run_path),
           "--workers", str(workers)], "invert", log, keep_stderr=show_progress)

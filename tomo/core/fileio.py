@@ -12,7 +12,7 @@ from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float", "read_toml", "check_output_path"]
+__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float", "read_toml", "check_output_path", "prepare_folder"]
 
 
 @contextlib.contextmanager
@@ -123,3 +123,17 @@ def check_output_path(path):
     if not os.access(folder, os.W_OK | os.X_OK):
         raise InputError("output folder is not writable", path=folder)
     return path
+
+
+def prepare_folder(out_dir):
+    """Create ``out_dir`` if needed and check it is writable; InputError otherwise."""
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError("exists and is not a folder", path=out_dir)
+    try:
+        out_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the output folder ({exc.strerror})", path=out_dir) from None
+    if not os.access(out_dir, os.W_OK | os.X_OK):
+        raise InputError("output folder is not writable", path=out_dir)
+    return out_dir

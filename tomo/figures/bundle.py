@@ -9,7 +9,7 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..core.errors import InputError
+from ..core.fileio import prepare_folder
 from . import compare, fit, section, style
 
 __all__ = ["FIGURES", "FigureSpec", "make_figures", "plot_run"]
@@ -54,20 +54,6 @@ def make_figures(run, skip_note=None):
             continue
         out.append((spec, fig))
     return out
-
-
-def prepare_folder(out_dir):
-    """Create ``out_dir`` if needed and check it is writable; InputError otherwise."""
-    out_dir = Path(out_dir)
-    if out_dir.exists() and not out_dir.is_dir():
-        raise InputError("exists and is not a folder", path=out_dir)
-    try:
-        out_dir.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"cannot create the output folder ({exc.strerror})", path=out_dir) from None
-    if not os.access(out_dir, os.W_OK | os.X_OK):
-        raise InputError("output folder is not writable", path=out_dir)
-    return out_dir
 
 
 def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None, extra=()):

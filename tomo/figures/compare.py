@@ -135,9 +135,9 @@ def compare_table(run, contour_m_s=None, refractor=None):
         return None
     surface = contour_surface(run, value)
     prof = profiles[k]
-    good = np.isfinite(surface["elevation_m"])
-    contour_z = np.interp(prof["x"], surface["x"][good], surface["elevation_m"][good], left=np.nan, right=np.nan)
-    constrained = np.interp(prof["x"], surface["x"], surface["constrained"].astype(float)) > 0.5
+    good = np.isfinite(surface.elevation_m)
+    contour_z = np.interp(prof["x"], surface.x[good], surface.elevation_m[good], left=np.nan, right=np.nan)
+    constrained = np.interp(prof["x"], surface.x, surface.constrained.astype(float)) > 0.5
     return {"refractor": k, "contour_m_s": float(value), "x": prof["x"],
             "refractor_elevation_m": prof["elevation_m"], "sigma_m": prof["sigma_m"],
             "contour_elevation_m": contour_z, "difference_m": contour_z - prof["elevation_m"],

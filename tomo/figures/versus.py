@@ -96,21 +96,21 @@ def versus_table(run, other, contour_m_s=None, labels=LABELS):
         except InputError as exc:
             raise InputError(f"{label}: {exc}") from None
     a, b = contour_surface(run, value), contour_surface(other, value)
-    ok = np.isfinite(b["elevation_m"])
+    ok = np.isfinite(b.elevation_m)
     if ok.any():
-        zb = np.interp(x, b["x"][ok], b["elevation_m"][ok], left=np.nan, right=np.nan)
+        zb = np.interp(x, b.x[ok], b.elevation_m[ok], left=np.nan, right=np.nan)
     else:
         zb = np.full(x.size, np.nan)
     # a column of this run counts only where the other run's nearest columns are constrained too
-    cb = np.interp(x, b["x"], b["constrained"].astype(float), left=0.0, right=0.0) > 0.5
-    diff = zb - a["elevation_m"]
+    cb = np.interp(x, b.x, b.constrained.astype(float), left=0.0, right=0.0) > 0.5
+    diff = zb - a.elevation_m
     # beyond the end geophones only the rays of off-end shots pass, shallow and few:
     # no column there counts, whatever the depth of investigation says
     rx = np.asarray(run.picks["receiver_x"], float)
     spread = (x >= rx.min()) & (x <= rx.max())
-    return {"contour_m_s": value, "x": x, "elevation_m": a["elevation_m"], "other_elevation_m": zb,
-            "difference_m": diff, "constrained": a["constrained"] & cb & np.isfinite(diff) & spread,
-            "this_constrained": a["constrained"], "other_constrained": cb}
+    return {"contour_m_s": value, "x": x, "elevation_m": a.elevation_m, "other_elevation_m": zb,
+            "difference_m": diff, "constrained": a.constrained & cb & np.isfinite(diff) & spread,
+            "this_constrained": a.constrained, "other_constrained": cb}
 
 
 def versus_summary(table, labels=LABELS):

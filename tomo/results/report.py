@@ -305,17 +305,17 @@ def _surface_table(run, velocity_m_s, step_m=10.0):
     geos = np.unique(np.round(run.picks["receiver_x"], 3))
     xs = np.arange(np.ceil(geos.min() / step_m) * step_m, geos.max() + 1e-9, step_m)
     rows = []
-    sx, good = surface["x"], np.isfinite(surface["elevation_m"])
+    sx, good = surface.x, np.isfinite(surface.elevation_m)
     for x in xs:
         j = int(np.argmin(np.abs(sx - x)))
         # linear between the two columns around x; a column that never reaches the
         # velocity leaves the value out
         near = slice(max(j - 1, 0), j + 2)
         ground = float(np.interp(x, run.terrain_x, run.terrain_z))
-        z = float(np.interp(x, sx[good], surface["elevation_m"][good])) if good[near].all() else float("nan")
+        z = float(np.interp(x, sx[good], surface.elevation_m[good])) if good[near].all() else float("nan")
         rows.append((f"{x:g}", f"{ground:.1f}", "-" if not np.isfinite(z) else f"{ground - z:.1f}",
                      "-" if not np.isfinite(z) else f"{z:.1f}",
-                     "yes" if surface["constrained"][j] else _Raw('<span class="flag">no</span>')))
+                     "yes" if surface.constrained[j] else _Raw('<span class="flag">no</span>')))
     return (f"<h3>Depth to the {velocity_m_s:.0f} m/s surface of the tomogram</h3>"
             "<p>Every " + f"{step_m:g} m along the spread; <i>constrained</i> says whether the surface lies above the "
             "depth of investigation there. The full profile: <code>tomo export RUN.h5 --contour "

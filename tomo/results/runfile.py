@@ -44,6 +44,8 @@ FORMAT_VERSION = 1
 
 _PICK_FIELDS = ("source_x", "source_z", "receiver_x", "receiver_z", "observed_ms", "computed_ms", "sigma_ms")
 _HISTORY_FIELDS = ("chi2", "rms_ms", "lambda", "step")
+#: Model arrays are stored compressed (gzip level 4: most of the gain, little of the time).
+_GZIP = {"compression": "gzip", "compression_opts": 4}
 
 
 def write_run(path, run):
@@ -71,7 +73,7 @@ def write_run(path, run):
             g["x"] = np.asarray(run.x, float)
             g["z"] = np.asarray(run.z, float)
             for name in ("velocity", "coverage", "start_velocity"):
-                g.create_dataset(name, data=np.asarray(getattr(run, name), float), compression="gzip", compression_opts=4)
+                g.create_dataset(name, data=np.asarray(getattr(run, name), float), **_GZIP)
             g = f.create_group("terrain")
             g["x"] = np.asarray(run.terrain_x, float)
             g["z"] = np.asarray(run.terrain_z, float)
@@ -84,7 +86,7 @@ def write_run(path, run):
             write_map_groups(f, run)
             g = f.create_group("iterations")
             for k, model in enumerate(run.iteration_models, start=1):
-                d = g.create_dataset(f"{k:03d}/velocity", data=np.asarray(model, float), compression="gzip", compression_opts=4)
+                d = g.create_dataset(f"{k:03d}/velocity", data=np.asarray(model, float), **_GZIP)
                 for name in ("chi2", "rms_ms", "lambda"):
                     values = run.history.get(name, [])
                     if len(values) > k:
@@ -101,8 +103,9 @@ def _jsonable(value):
     raise TypeError(f"not JSON serialisable: {type(value).__name__}")
 
 
-def read_run(path):
-    """Read a run file into a :class:`RunData`.
+def read_run(path, cls=RunData):
+    """Read a run file into a :class:`RunData` (or its subclass ``cls``, e.g.
+    :class:`tomo.results.run.Run`).
 
     Raises
     ------
@@ -139,7 +142,7 @@ def read_run(path):
                 for key in sorted(f["iterations"].keys()):
                     models.append(read(f"iterations/{key}/velocity"))
             layered = f.attrs.get("layered")
-            run = RunData(
+            run = cls(
                 x=read("model/x"), z=read("model/z"), velocity=read("model/velocity"),
                 coverage=read("model/coverage"), start_velocity=read("model/start_velocity"),
                 terrain_x=read("terrain/x"), terrain_z=read("terrain/z"),

@@ -23,7 +23,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from matplotlib.path import Path as PolygonPath
 
 from ..core.errors import InputError
 from ..core.fileio import read_toml as _read_toml
@@ -84,6 +83,8 @@ class Model:
             assigned |= here
             top = base
         for body in self.bodies:
+            from matplotlib.path import Path as PolygonPath  # matplotlib only when a model has bodies
+
             inside = PolygonPath(body.outline).contains_points(np.column_stack([x.ravel(), depth.ravel()]))
             v[inside.reshape(x.shape)] = body.velocity
         return v

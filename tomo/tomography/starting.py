@@ -150,10 +150,11 @@ def smooth_start(velocity, mesh, sigma_cells):
     return np.where(ground, np.exp(num / np.maximum(den, 1e-12)), np.nan)
 
 
-def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYERED_SMOOTHING_CELLS):
+def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYERED_SMOOTHING_CELLS, result=None):
     """Starting model from the layered interpretation, m/s on the mesh (NaN in air).
 
-    Calls ``tomo.layered.interpret_line(picks, terrain, n_branches=n_branches)`` and
+    Calls ``tomo.layered.interpret_line(picks, terrain, n_branches=n_branches)``
+    (unless ``result``, a ``LayeredResult`` of these picks, is given) and
     :func:`paint_layers`, then :func:`smooth_start` with
     ``smooth_cells`` (0: the sharp layers; why smooth: module docstring). Returns the
     velocity array and the interpretation as a dict (stored in the run file).
@@ -162,7 +163,8 @@ def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYER
     refractor as extra layers).
     """
     check_smoothing(smooth_cells)
-    result = interpret_line(picks, terrain=terrain, n_branches=n_branches)
+    if result is None:
+        result = interpret_line(picks, terrain=terrain, n_branches=n_branches)
     v = np.asarray(paint_layers(result, mesh), float)
     v = np.where(mesh.ground, v, np.nan)
     if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):
