@@ -62,8 +62,8 @@ def test_interpret_layers_recovers_the_head_wave_model():
     survey = tomo.read_survey(Picks(sx, np.zeros(sx.size), rx, np.zeros(sx.size), t, np.full(sx.size, 2e-4)))
     result = tomo.interpret_layers(survey)
     assert len(result.layers) == 2
-    np.testing.assert_allclose([lay["velocity_m_s"] for lay in result.layers], [600.0, 2400.0], rtol=0.02)
-    assert result.layers[0]["thickness_m"] == pytest.approx(5.0, rel=0.05)
+    np.testing.assert_allclose(result.velocities, [600.0, 2400.0], rtol=0.02)
+    assert result.thicknesses[0] == pytest.approx(5.0, rel=0.05)
     assert any("licensed professional" in c for c in result.cautions)
 
 
