@@ -142,17 +142,18 @@ def write_profile(result: LayeredResult, path: PathLike) -> int:
     return len(profile)
 
 
-def synthesize(model: PathLike, layout: PathLike, out: PathLike, terrain: PathLike | None = None,
-               mesh: PathLike | None = None, noise_ms: float = 0.0, seed: int | None = None, workers: int = 1,
-               progress: Callable[[int, int], object] | None = None) -> tuple[Any, dict[str, Any]]:
+def synthesize(model: PathLike, layout: PathLike, out: PathLike, **options: Any) -> tuple[Any, dict[str, Any]]:
     """Synthetic first-arrival picks through a layered model file (TOML) for the pairs of
-    a layout file, with Gaussian noise of ``noise_ms`` (ms, seeded); writes the pick file
-    ``out`` atomically. Returns the Picks and a dict (mesh, notices, fallbacks, shots).
-    See :func:`tomo.tomography.synth.synthesize`."""
+    a layout file, written to the pick file ``out`` atomically.
+
+    ``options`` are those of :func:`tomo.tomography.synth.synthesize` (``terrain``,
+    ``mesh``, ``noise_ms`` (ms, Gaussian, seeded by ``seed``), ``workers``,
+    ``progress``, ``records_dir`` and ``record_settings`` for SEG-Y shot records).
+    Returns the Picks written and a dict (mesh, notices, fallbacks, shots, records).
+    """
     from .tomography.synth import synthesize as synth
 
-    return synth(model, layout, out, terrain=terrain, mesh=mesh, noise_ms=noise_ms, seed=seed, workers=workers,
-                 progress=progress)
+    return synth(model, layout, out, **options)
 
 
 def _settings(values: dict[str, Any]) -> InversionSettings:
