@@ -52,9 +52,9 @@ if TYPE_CHECKING:
 __all__ = ["NO_TERRAIN_NOTE", "read_survey", "check_survey", "interpret_layers", "write_layers", "read_layers",
            "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
            "QC_DEFAULTS", "LAYERS_DEFAULTS", "MAX_BRANCHES", "check_branch_count", "synthesize",
-           "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels", "write_report",
-           "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport", "InversionSettings",
-           "IterationInfo", "InversionInterrupted", "check_output_path"]
+           "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels",
+           "write_report", "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport",
+           "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path"]
 
 #: Gaussian smoothing of the layered start, model cells (about one station spacing).
 START_SMOOTHING_CELLS = LAYERED_SMOOTHING_CELLS

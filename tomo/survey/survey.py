@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-
 from typing import Any
 
 from ..core.errors import InputError
