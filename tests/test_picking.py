@@ -9,7 +9,8 @@ from obspy.signal.trigger import aic_simple, classic_sta_lta, energy_ratio
 from tomo.cli import main
 from tomo.records import onset
 from tomo.records.picker import pick_gather
-from tomo.records.synthetic import RecordSettings, berlage_wavelet, synthetic_gather
+from tomo.records.reading import read_record
+from tomo.records.synthetic import RecordSettings, berlage_wavelet, synthetic_gather, write_segy
 from tomo.records.workflow import pick_records
 from tomo.survey.picks import read_picks
 
@@ -92,7 +93,8 @@ points = [[-10.0, 100.0], [45.0, 106.0], [100.0, 103.0]]
 def line(tmp_path_factory):
     """A line with terrain and a refractor: 36 geophones at 2.5 m, 6 shots, synthetic
     SEG-Y records at 0.25 ms with signal-to-noise 3 at the longest offset (tomo synth),
-    and the true first arrivals (its noise-free pick file)."""
+    two of whose channels are dead, and the true first arrivals (its noise-free pick
+    file)."""
     folder = tmp_path_factory.mktemp("line")
     (folder / "model.toml").write_text(MODEL)
     (folder / "mesh.toml").write_text("cell_m = 1.0\nrefine = 3\n")
@@ -104,6 +106,11 @@ def line(tmp_path_factory):
                  str(folder / "true.csv"), "--mesh", str(folder / "mesh.toml"), "--records",
                  str(folder / "records"), "--seed", "11"]) == 0
     records = sorted((folder / "records").glob("*.sgy"))
+    # two dead channels on the third shot: one silent, one flagged dead in its header
+    gather = read_record(records[2])
+    gather.data[10] = 0.0
+    gather.dead[20] = True
+    write_segy(records[2], gather)
     run = pick_records(records, folder / "auto.csv")
     return folder, run, read_picks(folder / "true.csv"), read_picks(folder / "auto.csv")
 
@@ -122,13 +129,20 @@ def test_automatic_picks_meet_the_issue_goals(line):
     traces picked, 90 % of picks within 1.0 ms and the median error within 0.3 ms, and
     the sigma honest (85-99 % of errors within 2 sigma: for a Gaussian error 95.4 %)."""
     _, run, true, auto = line
+    dead = [row for row in run.rows if row.status == "dead"]
+    assert [(row.record, row.channel) for row in dead] == [("shot_003.sgy", 11), ("shot_003.sgy", 21)]
     t, a, share = _matched(true, auto)
+    share *= len(run.rows) / (len(run.rows) - len(dead))    # of the live traces
     error_ms = (auto.time_s[a] - true.time_s[t]) * 1e3
     sigma_ms = auto.sigma_s[a] * 1e3
+    within_1ms, within_2sigma = np.mean(np.abs(error_ms) <= 1.0), np.mean(np.abs(error_ms) <= 2 * sigma_ms)
+    print(f"picked {share:.1%} of live traces; {within_1ms:.1%} within 1 ms; median error "
+          f"{np.median(error_ms):.3f} ms; {within_2sigma:.1%} within 2 sigma; "
+          f"median sigma {np.median(sigma_ms):.3f} ms")
     assert share >= 0.90
-    assert np.mean(np.abs(error_ms) <= 1.0) >= 0.90
+    assert within_1ms >= 0.90
     assert abs(np.median(error_ms)) <= 0.3
-    assert 0.85 <= np.mean(np.abs(error_ms) <= 2 * sigma_ms) <= 0.99
+    assert 0.85 <= within_2sigma <= 0.99
     # the sigma is the trace's own: it grows as the signal-to-noise ratio falls
     assert np.std(sigma_ms) > 0.1 * np.mean(sigma_ms)
 
@@ -139,6 +153,62 @@ def test_pick_file_is_read_by_the_other_commands(line, capsys):
     assert text.startswith("# first breaks picked by tomo") and "shot_001.sgy" in text
     assert auto.sigma_s is not None and np.all(auto.sigma_s > 0)
     assert main(["check", str(folder / "auto.csv")]) == 0
+
+
+def _grid_error_s(folder, picks, mesh_path):
+    """RMS difference (s) between the true model's times on the inversion's grid (built as
+    run_inversion builds it) and the true first arrivals: the inversion's own modelling
+    error, which no pick uncertainty contains."""
+    from tomo.survey.geometry import station_spacing
+    from tomo.survey.meshspec import inversion_mesh_spec, read_mesh_spec
+    from tomo.survey.model import read_model
+    from tomo.survey.terrain import terrain_from_stations
+    from tomo.tomography.forward import travel_times
+    from tomo.tomography.mesh import mesh_for_picks
+
+    spec = inversion_mesh_spec(station_spacing(picks), read_mesh_spec(mesh_path))
+    mesh, _ = mesh_for_picks(picks, terrain_from_stations(picks), spec)
+    model = read_model(folder / "model.toml")
+    times = travel_times(mesh, model.slowness_nodes(mesh), picks).time_s
+    return float(np.sqrt(np.mean((times - picks.time_s) ** 2)))
+
+
+def test_inverting_the_automatic_picks(line):
+    """Issue 13: inverting the automatic picks gives chi-squared 0.7-1.5 and a refractor
+    within 1.5 times the depth error of the same run from the true picks.
+
+    Both runs carry the automatic picks' sigmas plus, in quadrature, the inversion grid's
+    modelling error (the true model's times on that grid against the true times): data
+    and theory errors add (Tarantola 2005, Inverse Problem Theory, sec. 1.5, C_D + C_T),
+    and without it even the true picks could not reach chi-squared 1 on a grid this
+    coarse. The refractor is read as the 1425 m/s surface (the mean of the two layer
+    velocities) against the model file's base of the first layer, as an RMS over the
+    columns of the spread above the depth of investigation."""
+    from tomo.analysis.surface import contour_surface
+    from tomo.api import run_inversion
+    from tomo.survey.picks import write_picks
+
+    folder, run, true, auto = line
+    t, a, _ = _matched(true, auto)
+    mesh_path = folder / "coarse.toml"
+    mesh_path.write_text("cell_m = 2.5\nrefine = 3\n")
+    grid_s = _grid_error_s(folder, true, mesh_path)
+    sigma = np.hypot(auto.sigma_s[a], grid_s)
+    write_picks(folder / "auto-inv.csv", auto.subset(a).with_times(auto.time_s[a], sigma))
+    write_picks(folder / "true-inv.csv", true.subset(t).with_times(true.time_s[t], sigma))
+    errors, chi2 = [], []
+    for name in ("auto-inv.csv", "true-inv.csv"):
+        result = run_inversion(folder / name, mesh_path=mesh_path, start="gradient", out_path=None,
+                               max_iterations=20)
+        surface = contour_surface(result, 1425.0)
+        x = np.asarray(surface["x"])
+        inside = (x >= 0) & (x <= 87.5) & np.asarray(surface["constrained"])
+        true_depth = np.interp(x[inside], [0.0, 45.0, 87.5], [4.0, 7.0, 5.0])
+        errors.append(float(np.sqrt(np.nanmean((np.asarray(surface["depth_m"])[inside] - true_depth) ** 2))))
+        chi2.append(result.chi2)
+    print(f"grid error {grid_s * 1e3:.3f} ms; chi2 {chi2}; depth RMS error {errors} m")
+    assert 0.7 <= chi2[0] <= 1.5
+    assert errors[0] <= 1.5 * errors[1]
 
 
 def test_hand_edits_are_kept_and_corrections_applied(line, tmp_path, capsys):

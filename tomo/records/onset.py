@@ -36,9 +36,12 @@ def dominant_frequency(data, dt_s, min_hz=5.0):
     follows them do. Rows should have their means removed.
     """
     n = data.shape[-1]
+    rows = data.reshape(-1, n)
+    # sixteen rows spread over the gather tell the peak as well as all of them
+    rows = rows[np.linspace(0, rows.shape[0] - 1, min(rows.shape[0], 16)).astype(int)]
     nfft = int(2 ** np.ceil(np.log2(max(n, 16))))
-    spectrum = np.abs(np.fft.rfft(data * np.hanning(n), n=nfft, axis=-1))
-    mean = spectrum.reshape(-1, spectrum.shape[-1]).mean(axis=0)
+    spectrum = np.abs(np.fft.rfft(rows * np.hanning(n), n=nfft, axis=-1))
+    mean = spectrum.mean(axis=0)
     freq = np.fft.rfftfreq(nfft, dt_s)
     usable = freq >= min_hz
     # a light smoothing so that one noisy bin does not win
@@ -85,22 +88,25 @@ def energy_ratio(data, n):
     return out
 
 
-def energy_ratio_from_start(data, n, min_before=4, floor=0.0):
+def energy_ratio_from_start(data, n, min_before=4, floor=0.0, power=None):
     """Energy ratio whose earlier window is cut at the first sample: the mean power of
     the ``n`` samples from each sample on over the mean power of the up to ``n`` samples
     before it (at least ``min_before``), the latter no less than ``floor``. Lets a first
     break a few samples after the start of the record be found (:func:`energy_ratio`
     would ignore it); the floor (a share of the noise power) keeps a few quiet samples
-    at the start from making a spurious peak."""
-    c = np.cumsum(data * data, axis=-1)
-    c = np.concatenate([np.zeros(data.shape[:-1] + (1,)), c], axis=-1)
-    m = data.shape[-1]
+    at the start from making a spurious peak. ``power`` (optional) replaces
+    ``data * data``, e.g. the power summed over blocks of samples."""
+    power = data * data if power is None else power
+    m = power.shape[-1]
+    lead = np.zeros(power.shape[:-1] + (1,))
+    c = np.concatenate([lead, np.cumsum(power, axis=-1)], axis=-1)            # c[j]: samples 0..j-1
+    # slices of padded running sums instead of fancy indexing: several times faster
+    tail = np.concatenate([c, np.repeat(c[..., -1:], n, axis=-1)], axis=-1)  # c[min(j, m)]
+    head = np.concatenate([np.zeros(power.shape[:-1] + (n,)), c], axis=-1)    # c[max(j - n, 0)]
     i = np.arange(m)
-    stop = np.minimum(i + n, m)
-    start = np.maximum(i - n, 0)
-    after = (c[..., stop] - c[..., i]) / np.maximum(stop - i, 1)
-    before = np.maximum((c[..., i] - c[..., start]) / np.maximum(i - start, 1), floor)
-    out = np.divide(after, before, out=np.zeros(data.shape), where=before > 0)
+    after = (tail[..., n:n + m] - c[..., :m]) / np.maximum(np.minimum(i + n, m) - i, 1)
+    before = np.maximum((c[..., :m] - head[..., :m]) / np.maximum(np.minimum(i, n), 1), floor)
+    out = np.divide(after, before, out=np.zeros(power.shape), where=before > 0)
     out[..., :min_before] = 0.0
     return out
 
