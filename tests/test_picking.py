@@ -157,7 +157,7 @@ def test_pick_file_is_read_by_the_other_commands(line, capsys):
 
 def _grid_error_s(folder, picks, mesh_path):
     """RMS difference (s) between the true model's times on the inversion's grid (built as
-    run_inversion builds it) and the true first arrivals: the inversion's own modelling
+    tomo.api.invert builds it) and the true first arrivals: the inversion's own modelling
     error, which no pick uncertainty contains."""
     from tomo.survey.geometry import station_spacing
     from tomo.survey.meshspec import inversion_mesh_spec, read_mesh_spec
@@ -184,8 +184,7 @@ def test_inverting_the_automatic_picks(line):
     coarse. The refractor is read as the 1425 m/s surface (the mean of the two layer
     velocities) against the model file's base of the first layer, as an RMS over the
     columns of the spread above the depth of investigation."""
-    from tomo.analysis.surface import contour_surface
-    from tomo.api import run_inversion
+    from tomo.api import invert, read_survey
     from tomo.survey.picks import write_picks
 
     folder, run, true, auto = line
@@ -198,13 +197,12 @@ def test_inverting_the_automatic_picks(line):
     write_picks(folder / "true-inv.csv", true.subset(t).with_times(true.time_s[t], sigma))
     errors, chi2 = [], []
     for name in ("auto-inv.csv", "true-inv.csv"):
-        result = run_inversion(folder / name, mesh_path=mesh_path, start="gradient", out_path=None,
-                               max_iterations=20)
-        surface = contour_surface(result, 1425.0)
-        x = np.asarray(surface["x"])
-        inside = (x >= 0) & (x <= 87.5) & np.asarray(surface["constrained"])
-        true_depth = np.interp(x[inside], [0.0, 45.0, 87.5], [4.0, 7.0, 5.0])
-        errors.append(float(np.sqrt(np.nanmean((np.asarray(surface["depth_m"])[inside] - true_depth) ** 2))))
+        result = invert(read_survey(folder / name), start="gradient", mesh=mesh_path, max_iterations=20,
+                        progress=lambda info: None)
+        surface = result.surface(1425.0)
+        inside = (surface.x >= 0) & (surface.x <= 87.5) & surface.constrained
+        true_depth = np.interp(surface.x[inside], [0.0, 45.0, 87.5], [4.0, 7.0, 5.0])
+        errors.append(float(np.sqrt(np.nanmean((surface.depth_m[inside] - true_depth) ** 2))))
         chi2.append(result.chi2)
     print(f"grid error {grid_s * 1e3:.3f} ms; chi2 {chi2}; depth RMS error {errors} m")
     assert 0.7 <= chi2[0] <= 1.5
