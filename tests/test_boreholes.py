@@ -162,3 +162,25 @@ def test_boreholes_on_every_section_figure_and_in_the_report(tmp_path, base_run,
                  "--boreholes", str(write(tmp_path / "bad.csv", "x,depth_m\n99,3\n"))]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "bad.csv:2: field 'x'" in err and not (tmp_path / "figs").exists()
+
+
+def test_demo_boreholes_and_stations_agree_with_the_demo_site():
+    from pathlib import Path
+
+    from tomo.survey.model import read_model
+    from tomo.survey.stations import read_stations
+    from tomo.survey.terrain import read_terrain
+
+    demo = Path(__file__).resolve().parents[1] / "tomo" / "data" / "demo"
+    model = read_model(demo / "site.toml")
+    b = read_boreholes(demo / "boreholes.csv")
+    # the boreholes log the bedrock: the base of the second layer of the invented site,
+    # rounded to 0.1 m in the file (tomo/data/demo/README.md)
+    np.testing.assert_allclose(b.depth_m, model.layers[1].base_depth(b.x), atol=0.05)
+    stations = read_stations(demo / "stations.csv")
+    terrain = read_terrain(demo / "terrain.csv")
+    # elevations from the terrain (1 mm in the file); a straight line with 1 cm survey
+    # scatter: distances along it within 5 cm of x over 57 steps, no sideways warning
+    np.testing.assert_allclose(stations.elevation, terrain.elevation(stations.x), atol=5e-4)
+    np.testing.assert_allclose(stations.distance_m, stations.x, atol=0.05)
+    assert not stations.sideways().warn
