@@ -1,13 +1,17 @@
 """Speed and memory of the tomographic inversion on two typical lines.
 
-    /work/venv/bin/python benchmarks/invert.py [a|b] [--workers N]
+    python benchmarks/invert.py [a|b] [--workers N]
+    python benchmarks/invert.py starts [--seeds 1 2 3]   (benchmarks/starts.py)
 
 (a) 96 geophones at 2 m, 25 shots (about 2,400 picks); (b) a 1.2 km line, 241
 geophones at 5 m and 41 shots. Synthetic picks (0.5 ms Gaussian noise, seeded) come
 from an invented two-layer model with an undulating refractor, computed on a forward
 grid twice as fine as the inversion's. Prints per iteration the time in forward solves,
-ray tracing and the least-squares solve, then the total, the time the same number of
-plain forward solves takes (``tomo.forward.travel_times``) and peak memory.
+ray tracing and the least-squares solve, the least-squares solves of the update (how
+many, the most solver iterations one took and its stop reason), then the total, the
+time the same number of plain forward solves takes (``forward_pass`` without rays) and
+peak memory. ``starts`` runs the comparison of the two starting models on the channel
+and trough lines instead (with the numbers of before and after the objective changed).
 
 Goals (issue 4, on this 2-core machine): total <= 2 x the forward solves it needs;
 (a) under 30 s; (b) under 3 minutes and under 2 GB.
@@ -32,8 +36,10 @@ from tomo.survey.terrain import flat_terrain
 from tomo.tomography.forward import travel_times
 from tomo.tomography.inversion import InversionSettings, invert
 from tomo.tomography.mesh import build_mesh, mesh_for_picks
+from tomo.tomography.passes import forward_pass
 from tomo.tomography.rays import BOOKINGS
 from tomo.tomography.starting import gradient_start, layered_start
+from tomo.tomography.workers import Workers
 
 CASES = {
     # name: (geophone spacing m, n geophones, shot spacing m, n shots, refractor depth m)
@@ -74,11 +80,16 @@ def make_line(case, seed=7):
 
 
 def main(argv=None):
+    argv = sys.argv[1:] if argv is None else argv
+    if argv[:1] == ["starts"]:
+        import starts
+
+        return starts.main(argv[1:])
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("cases", nargs="*", default=["a", "b"])
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--max-iterations", type=int, default=InversionSettings().max_iterations)
-    parser.add_argument("--max-reduction", type=float, default=None)
+    parser.add_argument("--trust-reduction", type=float, default=None)
     parser.add_argument("--start", choices=("layered", "gradient"), default=None,
                         help="starting model (default: per case, see START)")
     parser.add_argument("--branches", type=int, default=None,
@@ -105,8 +116,8 @@ def main(argv=None):
         t_start = time.perf_counter() - t_start
         lines = []
         settings = InversionSettings(workers=args.workers, max_iterations=args.max_iterations)
-        if args.max_reduction is not None:
-            settings = replace(settings, max_reduction=args.max_reduction)
+        if args.trust_reduction is not None:
+            settings = replace(settings, trust_reduction=args.trust_reduction)
         if args.booking is not None:
             settings = replace(settings, ray_booking=args.booking)
         last = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "pass_wall_s": 0.0, "passes": 0}
@@ -119,15 +130,21 @@ def main(argv=None):
             # wall time of the passes so the columns add up
             cpu = d["forward_s"] + d["rays_s"]
             f = d["pass_wall_s"] / cpu if cpu > 0 else 0.0
-            lines.append((info.iteration, d["passes"], d["forward_s"] * f, d["rays_s"] * f, d["solve_s"], info.chi2))
+            worst = max(info.solves, key=lambda x: x.iterations, default=None)
+            solver = "-" if worst is None else f"{len(info.solves)} x <= {worst.iterations}: {worst.reason}"
+            lines.append((info.iteration, d["passes"], d["forward_s"] * f, d["rays_s"] * f, d["solve_s"], info.chi2,
+                          solver))
             print(f"  ({case}) {info}", file=sys.stderr)
 
         def plain_forward(velocity):
-            slow = mesh.cells_to_nodes(np.where(mesh.ground, 1.0 / np.nan_to_num(velocity, nan=1.0), 0.0))
+            # the eikonal solves alone (no rays), in a pool already running, as in a run
             t1 = time.perf_counter()
-            travel_times(mesh, slow, picks, workers=args.workers, reciprocity=True)
+            forward_pass(mesh, np.where(mesh.ground, 1.0 / np.nan_to_num(velocity, nan=1.0), 0.0), picks,
+                         settings, pool, rays=False)
             return time.perf_counter() - t1
 
+        pool = Workers(args.workers)
+        plain_forward(start)  # starts the pool
         before = plain_forward(start)
         t0 = time.perf_counter()
         run = invert(picks, mesh, start, settings, progress=progress)
@@ -135,14 +152,16 @@ def main(argv=None):
         # the plain forward solves the run needed: one per pass; timed before and after
         # the run (the machine is shared, so the mean of the two)
         one = 0.5 * (before + plain_forward(run.velocity))
+        pool.close()
         in_pass = sum(row[2] for row in lines)
         peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
         peak_child_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
         print(f"\ncase ({case}): {len(picks)} picks, {len(picks.sources()[0])} shots; mesh {mesh.describe()}")
         print(f"{kind} starting model: {t_start:.1f} s (not included below)")
-        print(f"{'iter':>4} {'passes':>6} {'forward s':>10} {'rays s':>8} {'solve s':>8} {'chi2':>8}")
-        for it, n, fw, ry, so, c2 in lines:
-            print(f"{it:>4} {n:>6} {fw:>10.2f} {ry:>8.2f} {so:>8.2f} {c2:>8.3f}")
+        print(f"{'iter':>4} {'passes':>6} {'forward s':>10} {'rays s':>8} {'solve s':>8} {'chi2':>8}  "
+              f"least-squares solves (iterations of the longest: its stop reason)")
+        for it, n, fw, ry, so, c2, solver in lines:
+            print(f"{it:>4} {n:>6} {fw:>10.2f} {ry:>8.2f} {so:>8.2f} {c2:>8.3f}  {solver}")
         passes = run.timing["passes"]
         print(f"stop: {run.stop_reason} after {run.iterations} iterations, chi2 {run.chi2:.3f}, RMS {run.rms_ms:.3f} ms")
         print(f"total {total:.1f} s; {passes} forward passes x {one:.2f} s plain forward = {passes * one:.1f} s "

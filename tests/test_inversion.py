@@ -96,24 +96,22 @@ def check_recovery(run, mesh, true_depth, v1, v2, settings, v1_above=None):
     assert good.sum() >= 30, good.sum()  # most of the 46 columns under the spread
     err = np.abs(depth[good] - true_depth[good]) / true_depth[good]
     # Issue 4 asks for within 10 % where coverage is good. Measured with noise seeds 1-6
-    # on both lines (default settings: stop at chi2 <= 1.1, smooth_x 0.5, bilinear ray
-    # booking; good columns x = 2.5-43.5 m on the trough line, 1.5-40.5 m on the
-    # weathered one): median error 6.3 % (trough) and 6.7 % (weathered zone), 80-100 %
-    # of the good columns within 10 %, worst column 7.8-14.2 % (at most 1.2 m, about a
-    # cell: on the flat shoulders toward the line ends and at the bottom of the trough,
-    # where smoothing rounds the surface; the weathered zone's contour sits shallow
-    # along much of the line, since its overburden velocity grows to 450-530 m/s at the
-    # interface while the contour uses the top 350 m/s). With 1 m cells over 8 m of
-    # cover, 10 % is less than a cell. The picks themselves do not fix the contour that
-    # closely: from the layered start the same picks are fitted as well (chi2 0.95-1.10,
-    # same seeds) with contours up to 18 % (trough) and 19 % (weathered zone) off (30 %
-    # and 27 % from the sharp, unsmoothed layers), and
-    # neither a blocky (IRLS L1) measure of the model roughness nor sharpening
-    # iterations at the target misfit brought the worst column below 12 % (measured).
-    # Asserted so that it holds for any of those seeds: median within 10 %, no column
-    # beyond 15 % (the measured worst plus under 1 %).
-    assert np.median(err) <= 0.10, np.round(err, 3)
-    assert err.max() <= 0.15, np.round(err, 3)
+    # on both lines, from both starting models (default settings: the smoothest model
+    # at chi2 1 +- 0.1, smooth_x 0.5, smooth_z 0.2, bilinear ray booking; good columns
+    # x = 2.5-43.5 m on the trough line, 1.5-40.5 m on the weathered one): median error
+    # 4.0-6.9 % (trough, gradient start), 4.7-6.4 % (trough, layered start), 6.3-7.8 %
+    # and 5.3-7.1 % (weathered zone); worst column 8.9-12.5 % (trough) and 7.5-10.3 %
+    # (weathered zone), about a cell of 1 m: at the bottom of the trough and on the flat
+    # shoulders toward the line ends, where smoothing rounds the surface; the weathered
+    # zone's contour sits shallow along much of the line, since its overburden velocity
+    # grows to 450-530 m/s at the interface while the contour uses the top 350 m/s.
+    # Before the objective penalised the roughness of the model itself (it penalised
+    # that of its departure from the start), the layered start kept contours up to 18 %
+    # (trough) and 19 % (weathered zone) off, 30 % and 27 % from the sharp layers.
+    # Asserted so that it holds for any of those seeds and both starts: median within
+    # 9 %, no column beyond 13 % (the measured worst plus under 1 %; was 10 % and 15 %).
+    assert np.median(err) <= 0.09, np.round(err, 3)
+    assert err.max() <= 0.13, np.round(err, 3)
 
 
 def test_recovers_a_refractor_with_a_trough():
@@ -141,20 +139,22 @@ def test_recovers_a_low_velocity_weathered_zone():
     check_recovery(run, mesh, true_depth, v1, v2, settings, v1_above=v1 + 20.0 * true_depth)
 
 
-def test_layered_start_fits_the_picks():
-    # Only the fit is checked: the depths follow the layered interpretation's, which on
-    # this small line has the refractor 5-14 % fast over noise seeds 1-6 (2.1-2.3 km/s
-    # against 2 km/s true, measured); the tomogram fits the picks near it equally well
-    # (non-uniqueness).
+def test_layered_start_recovers_the_refractor_as_the_gradient_start_does():
+    # The objective holds nothing of the start (module docstring of
+    # tomo.tomography.inversion), so from the layered interpretation, whose refractor is
+    # 5-14 % fast on this line (2.1-2.3 km/s against 2 km/s, noise seeds 1-6, measured),
+    # the run must reach the same recovery as from the gradient start (check_recovery).
     from tomo.tomography.starting import layered_start
 
     base = np.array([[0.0, 8.0], [12.0, 8.0], [23.0, 12.0], [34.0, 8.0], [46.0, 8.0]])
-    picks = synthetic(Model((Layer(500.0, 0.0, base), Layer(2000.0)), terrain=TERRAIN))
+    v1, v2 = 500.0, 2000.0
+    picks = synthetic(Model((Layer(v1, 0.0, base), Layer(v2)), terrain=TERRAIN))
     mesh = inversion_mesh()
     start, layered = layered_start(picks, mesh, TERRAIN)
     assert isinstance(layered, dict)
-    run = invert(picks, mesh, start, InversionSettings(workers=1), layered=layered)
-    assert 0.8 <= run.chi2 <= 1.3 and run.converged  # discrepancy principle, as above
+    settings = InversionSettings(workers=1)
+    run = invert(picks, mesh, start, settings, layered=layered)
+    check_recovery(run, mesh, np.interp(mesh.x, base[:, 0], base[:, 1]), v1, v2, settings)
     assert np.all(np.isfinite(run.velocity[mesh.ground]))
 
 
@@ -341,3 +341,23 @@ def test_rays_traced_later_are_the_rays_traced_at_once():
         assert later.pending is None and later.rays_s > 0.0
         assert abs(later.matrix - at_once.matrix).max() <= 1e-12
         assert trace_pass(mesh, later) == (0.0, 0.0)  # nothing left to trace
+
+
+def test_two_inversions_at_once_in_one_process_match_sequential_runs(small_case):
+    # Each inversion owns its spawned worker pool and shares no module state, so two
+    # running at once in threads of one process give exactly the results of the same
+    # runs one after the other (an internal consistency check of the parallel layout;
+    # the numbers themselves are checked by the recovery tests above).
+    from concurrent.futures import ThreadPoolExecutor
+
+    picks, mesh, start = small_case
+    layered_like = np.where(mesh.ground, np.where(mesh.depth > 7.0, 1900.0, 520.0), np.nan)
+    cases = [(start, InversionSettings(workers=2, max_iterations=3)),
+             (layered_like, InversionSettings(workers=2, max_iterations=3, smooth_x=1.0))]
+    sequential = [invert(picks, mesh, v, s) for v, s in cases]
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        together = list(pool.map(lambda case: invert(picks, mesh, *case), cases))
+    for a, b in zip(sequential, together):
+        np.testing.assert_array_equal(a.velocity, b.velocity)
+        np.testing.assert_array_equal(a.history["chi2"], b.history["chi2"])
+    assert not np.array_equal(sequential[0].velocity, sequential[1].velocity, equal_nan=True)

@@ -302,8 +302,8 @@ def choose_update(problem, state, linear):
     1987). Where the iterations settle above the target at the weight the linearised
     problem chose (the ray matrix is a few per cent off the true sensitivities, so the
     linearisation promises a fit the model does not deliver), the aim is lowered by the
-    excess (``state.bias``): a correction standing in for Occam's search of the weight
-    on the true misfit.
+    excess (``state.bias``, at most twice the tolerance): a correction standing in for
+    Occam's search of the weight on the true misfit.
     """
     s = problem.settings
     final = s.trust_reduction * state.chi2 <= s.chi2_target
@@ -400,11 +400,15 @@ def iterate(problem, state, evaluate):
     m, res, r, chi2, alpha = best
     evaluate.trace(res)
     settings = problem.settings
-    slow = (state.chi2 - chi2) / state.chi2 < settings.min_improvement
-    if final and slow and chi2 > settings.chi2_target + settings.chi2_tolerance:
+    gain = (state.chi2 - chi2) / state.chi2
+    slow = gain < settings.min_improvement
+    if final and 0 <= gain < settings.min_improvement and chi2 > settings.chi2_target + settings.chi2_tolerance:
         # settling above the target at this weight (the linearised problem thinks it
-        # fits): aim lower by the excess, up to half the target, and so lower the weight
-        state.bias = min(state.bias + chi2 - settings.chi2_target, 0.5 * settings.chi2_target)
+        # fits): aim lower by the excess, at most twice the tolerance below the target
+        cap = 2.0 * settings.chi2_tolerance
+        if state.bias < cap:
+            state.bias = min(state.bias + chi2 - settings.chi2_target, cap)
+            slow = False  # a lower aim is still to be tried: not a stall
     step = Step(list(linear.solves), info.lam, alpha, aim, final, info.predicted_chi2, rough_before,
                 problem.roughness(m))
     state.m, state.res, state.r, state.last_step = m, res, r, alpha
