@@ -113,7 +113,7 @@ def test_compare_figure_needs_layered_result(runs):
     assert compare.layered_vs_gridded(without) is None
     fig = compare.layered_vs_gridded(with_layers)
     assert fig is not None
-    assert with_layers.settings["start"] == "layered" and "not an independent check" in fig.axes[0].get_title()
+    assert with_layers.settings["start"] == "layered" and "started from this layered model" in fig.axes[0].get_title()
     style.plt.close(fig)
 
 

@@ -218,8 +218,8 @@ def layered_vs_gridded(run, contour_m_s=None, refractor=None, title="Layered and
             lim = max(lim, float(np.nanmax(np.abs(d))))
     head = f"{title} (vertical exaggeration {ve:g}:1)"
     if (run.settings or {}).get("start") == "layered":
-        # the tomogram inherits the layered depths where the picks allow (tomo.report)
-        head += "\ntomography started from this layered model: agreement is not an independent check"
+        # said so that a reader can weigh the agreement (tomo.results.report.LAYERED_START_NOTE)
+        head += "\ntomography started from this layered model (its objective keeps nothing of the start)"
     ax.set_title(head)
     handles, labels = ax.get_legend_handles_labels()
     lx = fig.add_subplot(gs[1])
