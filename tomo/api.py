@@ -25,6 +25,7 @@ import inspect
 import logging
 import os
 from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal
 
@@ -34,6 +35,8 @@ from .layered.branches import MAX_BRANCHES, check_branch_count
 from .layered.interpret import interpret_line
 from .layered.qc import QCReport, check_line
 from .layered.result import LayeredResult
+from .records.picker import PickSettings
+from .records.synthetic import RecordSettings
 from .results.layersfile import check_layers_match
 from .results.layersfile import read_layers as _read_layers_file
 from .results.layersfile import write_layers as _write_layers_file
@@ -54,7 +57,8 @@ __all__ = ["NO_TERRAIN_NOTE", "read_survey", "check_survey", "interpret_layers",
            "QC_DEFAULTS", "LAYERS_DEFAULTS", "MAX_BRANCHES", "check_branch_count", "synthesize",
            "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels",
            "write_report", "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport",
-           "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path"]
+           "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path",
+           "export", "Exported", "pick_records", "plot_gathers", "PickSettings", "RecordSettings"]
 
 #: Gaussian smoothing of the layered start, model cells (about one station spacing).
 START_SMOOTHING_CELLS = LAYERED_SMOOTHING_CELLS
@@ -382,3 +386,122 @@ def write_surface(run: Run, surface: Surface, path: PathLike, source: PathLike |
     from .results.export import write_surface as write
 
     return write(path, run, surface.velocity_m_s, source=None if source is None else str(source), surface=surface)
+
+
+@dataclass
+class Exported:
+    """What :func:`export` wrote (None or 0 for what was not asked for).
+
+    Attributes
+    ----------
+    grid_cells : int
+        Rows of the grid CSV (ground cells).
+    surfaces : list of SectionSurface
+        The surfaces exported: the contours asked for (or the layered refractor's),
+        then the layered delay-time refractors; the surface CSV holds the first.
+    geojson_features : int
+    dxf_layers : int
+    """
+
+    grid_cells: int = 0
+    surfaces: list[Any] = field(default_factory=list)
+    geojson_features: int = 0
+    dxf_layers: int = 0
+
+
+def export(run: Run, *, grid: PathLike | None = None, surface: PathLike | None = None,
+           netcdf: PathLike | None = None, geojson: PathLike | None = None, dxf: PathLike | None = None,
+           contours_m_s: Sequence[float] | None = None, crs: int | str | None = None,
+           source: PathLike | None = None) -> Exported:
+    """Export a run for other tools; everything is checked before anything is written.
+
+    Parameters
+    ----------
+    run : Run
+    grid, surface, netcdf, geojson, dxf : path, optional
+        Grid CSV (x, z, velocity, coverage per ground cell), surface CSV (one
+        ``contours_m_s`` surface per column), CF netCDF grid, GeoJSON points (RFC 7946,
+        WGS 84; needs a line on the map) and a DXF section drawing at true scale.
+    contours_m_s : sequence of float, optional
+        Velocities of the surfaces, m/s (default: the layered refractor's contour, the
+        mean of the layer velocities above and below it).
+    crs : int or str, optional
+        EPSG code of the run's stations when it was inverted without one.
+    source : path, optional
+        The run file's name, written into the exports' headers.
+    """
+    from dataclasses import replace
+
+    from .results.surfaces import export_contours, section_surfaces
+    from .survey.crs import check_crs
+
+    outputs = {"grid": grid, "surface": surface, "netcdf": netcdf, "geojson": geojson, "dxf": dxf}
+    if not any(outputs.values()):
+        raise InputError("nothing to export: give --grid, --surface, --netcdf, --geojson and/or --dxf")
+    if surface and contours_m_s and len(contours_m_s) > 1:
+        raise InputError("--surface writes one surface: give one --contour V", field="--contour")
+    if crs is not None:
+        if run.stations is None:
+            raise InputError("the run has no stations to place with --crs (invert with --stations)", field="--crs")
+        stations: Any = run.stations
+        run.stations = replace(stations, crs=check_crs(crs))
+    done = Exported()
+    if surface or geojson or dxf:
+        wanted = "--surface" if surface and not (geojson or dxf) else "the export"
+        done.surfaces = section_surfaces(run, export_contours(run, contours_m_s, needed_for=wanted))
+    if geojson:
+        from .results.geojson import feature_collection
+
+        feature_collection(run, done.surfaces)  # refuses a run without map coordinates now, not halfway
+    for path in outputs.values():
+        if path:
+            check_output_path(path)
+    _write_exports(run, done, outputs, None if source is None else str(source))
+    return done
+
+
+def _write_exports(run: Run, done: Exported, outputs: dict[str, Any], source: str | None) -> None:
+    from .results.export import write_grid as grid_csv
+    from .results.export import write_surface as surface_csv
+
+    if outputs["grid"]:
+        done.grid_cells = grid_csv(outputs["grid"], run, source=source)
+    if outputs["surface"]:
+        surface_csv(outputs["surface"], run, done.surfaces[0].velocity_m_s, source=source)
+    if outputs["netcdf"]:
+        from .results.netcdf import write_netcdf
+
+        write_netcdf(outputs["netcdf"], run, source=source)
+    if outputs["geojson"]:
+        from .results.geojson import write_geojson
+
+        done.geojson_features = len(write_geojson(outputs["geojson"], run, done.surfaces)["features"])
+    if outputs["dxf"]:
+        from .results.dxf import write_dxf
+
+        done.dxf_layers = len(write_dxf(outputs["dxf"], run, done.surfaces, source=source))
+
+
+def pick_records(records: Sequence[PathLike], out: PathLike, layout: PathLike | None = None,
+                 corrections: PathLike | None = None, settings: PickSettings | None = None, stack: bool = True,
+                 progress: Callable[[int, int], object] | None = None) -> Any:
+    """Pick the first break of every trace of SEG-2 / SEG-Y shot records, with its sigma.
+
+    Reads the records (ObsPy), picks each shot gather (:mod:`tomo.records.picker`),
+    keeps the hand edits of an earlier pick file and the ``corrections`` file, and
+    writes the pick file ``out`` with its trace table beside it. Returns the
+    :class:`tomo.records.workflow.PickRun` (gathers, picks, every trace's status).
+    """
+    from .records.workflow import pick_records as pick
+
+    return pick(list(records), out, layout_path=layout, corrections_path=corrections, settings=settings,
+                stack=stack, progress=progress)
+
+
+def plot_gathers(result: Any, folder: PathLike) -> list[Path]:
+    """Save a gather figure per shot and a figure of all picks of a :func:`pick_records`
+    result into ``folder``; returns the files."""
+    from .figures.gathers import write_gather_figures
+
+    return list(write_gather_figures(result, folder))
+

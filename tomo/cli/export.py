@@ -34,66 +34,23 @@ def register(sub):
     p.set_defaults(run=run)
 
 
-def _prepare(args):
-    """Read and check everything before writing anything: (run, surfaces, outputs)."""
-    from dataclasses import replace
-
-    from ..core.errors import InputError
-    from ..core.fileio import check_output_path
-    from ..results.runfile import read_run
-    from ..results.surfaces import export_contours, section_surfaces
-    from ..survey.crs import check_crs
-
-    outputs = {name: getattr(args, name) for name in ("grid", "surface", "netcdf", "geojson", "dxf")}
-    if not any(outputs.values()):
-        raise InputError("nothing to export: give --grid, --surface, --netcdf, --geojson and/or --dxf")
-    if args.surface and args.contour and len(args.contour) > 1:
-        raise InputError("--surface writes one surface: give one --contour V", field="--contour")
-    run = with_boreholes(read_run(args.run_file), args.boreholes)
-    if args.crs is not None:
-        if run.stations is None:
-            raise InputError("the run has no stations to place with --crs (invert with --stations)", field="--crs")
-        run.stations = replace(run.stations, crs=check_crs(args.crs))
-    surfaces = []
-    if args.surface or args.geojson or args.dxf:
-        wanted = "--surface" if args.surface and not (args.geojson or args.dxf) else "the export"
-        surfaces = section_surfaces(run, export_contours(run, args.contour, needed_for=wanted))
-    if args.geojson:
-        from ..results.geojson import feature_collection
-
-        feature_collection(run, surfaces)  # refuses a run without map coordinates now, not halfway
-    for path in outputs.values():
-        if path:
-            check_output_path(path)
-    return run, surfaces, outputs
-
-
 def run(args):
-    from ..results.export import write_grid, write_surface
+    from .. import api
 
-    run_data, surfaces, out = _prepare(args)
-    if out["grid"]:
-        n = write_grid(out["grid"], run_data, source=args.run_file)
-        print(f"wrote {n} cells to {out['grid']}")
-    if out["surface"]:
-        surface = surfaces[0]
-        write_surface(out["surface"], run_data, surface.velocity_m_s, source=args.run_file)
+    run_data = with_boreholes(api.read_run(args.run_file), args.boreholes)
+    done = api.export(run_data, grid=args.grid, surface=args.surface, netcdf=args.netcdf, geojson=args.geojson,
+                      dxf=args.dxf, contours_m_s=args.contour, crs=args.crs, source=args.run_file)
+    if args.grid:
+        print(f"wrote {done.grid_cells} cells to {args.grid}")
+    if args.surface:
+        surface = done.surfaces[0]
         reached = int(sum(surface.depth_m == surface.depth_m))
-        print(f"wrote the {surface.velocity_m_s:g} m/s surface to {out['surface']} ({reached} of "
+        print(f"wrote the {surface.velocity_m_s:g} m/s surface to {args.surface} ({reached} of "
               f"{surface.x.size} columns reach it, {int(surface.constrained.sum())} constrained by rays)")
-    if out["netcdf"]:
-        from ..results.netcdf import write_netcdf
-
-        write_netcdf(out["netcdf"], run_data, source=args.run_file)
-        print(f"wrote the grid as CF netCDF to {out['netcdf']}")
-    if out["geojson"]:
-        from ..results.geojson import write_geojson
-
-        collection = write_geojson(out["geojson"], run_data, surfaces)
-        print(f"wrote {len(collection['features'])} features (WGS 84 longitude, latitude) to {out['geojson']}")
-    if out["dxf"]:
-        from ..results.dxf import write_dxf
-
-        layers = write_dxf(out["dxf"], run_data, surfaces, source=args.run_file)
-        print(f"wrote the section drawing (m, true scale; {len(layers)} layers) to {out['dxf']}")
+    if args.netcdf:
+        print(f"wrote the grid as CF netCDF to {args.netcdf}")
+    if args.geojson:
+        print(f"wrote {done.geojson_features} features (WGS 84 longitude, latitude) to {args.geojson}")
+    if args.dxf:
+        print(f"wrote the section drawing (m, true scale; {done.dxf_layers} layers) to {args.dxf}")
     return 0

@@ -6,7 +6,7 @@ from . import note, progress_printer
 
 
 def register(sub):
-    from ..records.picker import PickSettings
+    from ..api import PickSettings
 
     defaults = PickSettings()
     p = sub.add_parser(
@@ -43,16 +43,15 @@ def register(sub):
 def run(args):
     from pathlib import Path
 
+    from .. import api
     from ..core.errors import InputError
-    from ..records.picker import PickSettings
-    from ..records.workflow import pick_records
 
-    settings = PickSettings(highcut_hz=args.highcut_hz, min_snr=args.min_snr,
+    settings = api.PickSettings(highcut_hz=args.highcut_hz, min_snr=args.min_snr,
                             consistency_sigmas=args.check_sigma)
     if args.figure_dir and not Path(args.figure_dir).is_dir():
         raise InputError("figure folder does not exist", path=args.figure_dir)
-    result = pick_records(args.records, args.out, layout_path=args.layout, corrections_path=args.corrections,
-                          settings=settings, stack=not args.no_stack, progress=progress_printer("gathers"))
+    result = api.pick_records(args.records, args.out, layout=args.layout, corrections=args.corrections,
+                              settings=settings, stack=not args.no_stack, progress=progress_printer("gathers"))
     for message in result.notes:
         note(message)
     unpicked = [row for row in result.rows if not row.picked]
@@ -66,8 +65,6 @@ def run(args):
           f"(" + ", ".join(f"{n} {s}" for s, n in sorted(counts.items())) + ")")
     print(f"trace table: {result.table_path}")
     if args.figure_dir:
-        from ..figures.gathers import write_gather_figures
-
-        for path in write_gather_figures(result, args.figure_dir):
+        for path in api.plot_gathers(result, args.figure_dir):
             print(f"wrote {path}")
     return 0

@@ -39,7 +39,7 @@ def run(args):
         raise InputError(f"--noise-ms must be >= 0, got {args.noise_ms:g}")
     record_settings = None
     if args.records:
-        from ..records.synthetic import RecordSettings
+        from ..api import RecordSettings
 
         record_settings = RecordSettings(dt_s=args.record_dt_ms * 1e-3, snr=args.record_snr).check()
     picks, info = synthesize(args.model, args.layout, args.out, terrain=args.terrain, mesh=args.mesh,
