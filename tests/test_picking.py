@@ -237,6 +237,17 @@ def test_hand_edits_are_kept_and_corrections_applied(line, tmp_path, capsys):
     assert out.read_text() == again
 
 
+def test_gather_figures(line, tmp_path, capsys):
+    """--figure-dir writes a figure per shot and the pick-offset figure (looked at as PNGs
+    when they were made; here only their presence and size)."""
+    folder, _, _, _ = line
+    records = sorted(str(p) for p in (folder / "records").glob("*.sgy"))[2:4]
+    assert main(["pick", *records, "--out", str(tmp_path / "p.csv"), "--figure-dir", str(tmp_path)]) == 0
+    written = sorted(p.name for p in tmp_path.glob("*.png"))
+    assert written == ["gather-shot_003.png", "gather-shot_004.png", "picks-offset.png"]
+    assert all((tmp_path / name).stat().st_size > 20_000 for name in written)
+
+
 def test_refuses_to_overwrite_a_pick_file_it_did_not_write(line, tmp_path, capsys):
     folder, _, _, _ = line
     out = tmp_path / "picks.csv"

@@ -148,8 +148,8 @@ def _run_pick(args, capsys):
     return status, capsys.readouterr()
 
 
-@pytest.mark.parametrize("case", ["not seismic", "no positions", "layout count", "truncated", "zero length",
-                                  "missing file"])
+@pytest.mark.parametrize("case", ["not seismic", "no positions", "layout count", "truncated", "truncated SEG-Y",
+                                  "zero length", "missing file"])
 def test_bad_records_give_one_line_and_no_output(tmp_path, capsys, case):
     out = tmp_path / "picks.csv"
     args = []
@@ -172,6 +172,12 @@ def test_bad_records_give_one_line_and_no_output(tmp_path, capsys, case):
         bad, _ = small_seg2(tmp_path)
         bad.write_bytes(bad.read_bytes()[:-60])
         words = "shot.sg2"
+    elif case == "truncated SEG-Y":
+        g = synthetic_gather(0.0, 0.0, np.array([2.5, 5.0]), np.zeros(2), np.array([0.005, 0.01]),
+                             rng=np.random.default_rng(0))
+        bad = write_segy(tmp_path / "shot.sgy", g)
+        bad.write_bytes(bad.read_bytes()[:-100])
+        words = "damaged or truncated record"
     elif case == "zero length":
         bad = tmp_path / "shot.sg2"
         write_seg2(bad, [np.zeros(10), np.zeros(0)], 0.001, 0.0, 0.0, [1.0, 2.0])
@@ -184,6 +190,16 @@ def test_bad_records_give_one_line_and_no_output(tmp_path, capsys, case):
     assert status == 2 and len(err) == 1 and words in err[0] and bad.name in err[0] + str(args), err
     assert "Traceback" not in captured.err
     assert not out.exists() and not list(tmp_path.glob("*.part"))
+
+
+def test_layout_delay_wins_over_the_header(tmp_path):
+    """A trigger delay known from the field (layout delay_ms) replaces the header's."""
+    path, _ = small_seg2(tmp_path)
+    rows = ["record,channel,source_x,receiver_x,delay_ms"]
+    rows += [f"shot.sg2,{k},12.5,{2.5 * (k - 1)},2" for k in range(1, 5)]
+    (tmp_path / "layout.csv").write_text("\n".join(rows) + "\n")
+    g = read_record(path, read_layout(tmp_path / "layout.csv"))
+    assert g.delay_s == 0.002 and g.time_s[0] == 0.002
 
 
 def test_layout_errors_name_file_line_and_field(tmp_path):

@@ -6,8 +6,8 @@ and the pick after it, and straight-line extrapolation from the two picks on eit
 side. A first-arrival curve is piecewise straight (one slope per refractor), so at a
 kink (a crossover) one of the three predictions still runs along the pick's own branch;
 a pick is an outlier only when it misses all of them by more than ``n_sigma`` combined
-standard deviations and by more than a floor (a quarter period, below which a first
-break cannot be told from its own wavelet). Outliers are removed one at a time, the
+standard deviations and by more than a floor (an eighth of a period, below which a miss
+is within the first break's own shape). Outliers are removed one at a time, the
 worst first, and the predictions recomputed, so that one bad pick does not condemn its
 neighbours.
 """

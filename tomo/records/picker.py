@@ -187,7 +187,7 @@ def pick_gather(gather, settings=None):
     noise_r = _noise_rms(raw, k_aic, period)
     amplitude = _peak_after(filtered, k_aic, period)
     snr = amplitude / np.maximum(noise_f, 1e-300)
-    onset_k, amp, sigma_k, reversed_, waveform = _refine(filtered, raw, k_aic, snr, noise_r, period, live)
+    onset_k, amp, sigma_k, reversed_, waveform, edge = _refine(filtered, raw, k_aic, snr, noise_r, period, live)
     if amp is not None:
         snr = amp / np.maximum(noise_f, 1e-300)
     _mark_noisy_and_clipped(raw, onset_k, snr, settings.min_snr, period, status, reason)
@@ -201,33 +201,47 @@ def pick_gather(gather, settings=None):
         template_traces=0 if waveform is None else waveform[2],
         reversed=reversed_ & (status == "picked"), notes=list(gather.notes),
     )
-    _check_neighbours(picks, filtered, noise_r, gather, period, waveform, settings)
+    _check_neighbours(picks, filtered, noise_r, gather, period, waveform, settings, edge)
     if waveform is not None:
         _recover_near_trend(picks, filtered, noise_f, noise_r, gather, period, waveform, settings)
     picks.status = picks.status.astype(str)
     return picks
 
 
-def _check_neighbours(picks, filtered, noise_r, gather, period, waveform, settings):
+def _check_neighbours(picks, filtered, noise_r, gather, period, waveform, settings, edge):
     """Re-pick, in a narrow window about their neighbours' trend, the picks that break
-    from it (:mod:`tomo.records.consistency`); drop those that still do."""
+    from it (:mod:`tomo.records.consistency`) and those whose match stopped at the edge
+    of its search window (the first estimate was too far off to be trusted); drop those
+    that still break from the trend."""
     dt = gather.dt_s
-    floor_s = period * dt / 4
-    found = find_outliers(gather.offset, picks.time_s, picks.sigma_s, picks.status == "picked",
-                          settings.consistency_sigmas, floor_s)
-    for k in np.flatnonzero(found.flagged):
-        miss_ms = found.miss_s[k] * 1e3
+    # an eighth of a period: smaller misses are within a first break's own shape
+    floor_s = period * dt / 8
+    picked = picks.status == "picked"
+    found = find_outliers(gather.offset, picks.time_s, picks.sigma_s, picked, settings.consistency_sigmas, floor_s)
+    suspects = found.flagged | (edge & picked)
+    trusted = picked & ~suspects
+    for k in np.flatnonzero(suspects):
+        # predicted from the trusted picks only: two bad picks side by side must not
+        # vouch for each other
+        predicted, predicted_sigma = trend_at(gather.offset, picks.time_s, picks.sigma_s, trusted, k)
+        why = "first pick" if found.flagged[k] else "first match at the edge of its window,"
+        if not np.isfinite(predicted):
+            if found.flagged[k]:
+                predicted, predicted_sigma = found.predicted_s[k], found.predicted_sigma_s[k]
+            else:
+                continue
+        miss_ms = abs(picks.time_s[k] - predicted) * 1e3
         if waveform is not None:
             seg, pre, _ = waveform
-            centre = np.array([(found.predicted_s[k] - gather.delay_s) / dt])
-            onset_k, amp, _ = _match(filtered[k:k + 1], centre, seg, pre, max(period // 8, 1))
+            centre = np.array([(predicted - gather.delay_s) / dt])
+            onset_k, amp, _, _ = _match(filtered[k:k + 1], centre, seg, pre, max(period // 8, 1))
             new_s = gather.delay_s + onset_k[0] * dt
             sigma = _sigma(noise_r[k:k + 1], amp, seg)[0] * dt
-            allowed = max(settings.consistency_sigmas * np.hypot(sigma, found.predicted_sigma_s[k]), floor_s)
-            if abs(new_s - found.predicted_s[k]) <= allowed:
-                picks.time_s[k], picks.sigma_s[k] = new_s, np.hypot(sigma, found.predicted_sigma_s[k])
+            allowed = max(settings.consistency_sigmas * np.hypot(sigma, predicted_sigma), floor_s)
+            if abs(new_s - predicted) <= allowed:
+                picks.time_s[k], picks.sigma_s[k] = new_s, np.hypot(sigma, predicted_sigma)
                 picks.status[k] = "re-picked"
-                picks.reason[k] = f"re-picked near its neighbours' trend (first pick {miss_ms:.1f} ms off it)"
+                picks.reason[k] = f"re-picked near its neighbours' trend ({why} {miss_ms:.1f} ms off it)"
                 continue
         picks.status[k] = "inconsistent"
         picks.reason[k] = f"inconsistent ({miss_ms:.1f} ms off its neighbours' trend, no onset near the trend)"
@@ -246,7 +260,8 @@ def _mark_unusable(gather, raw, status, reason):
         if gather.dead[k]:
             status[k], reason[k] = "dead", "dead (marked in the header or layout)"
         elif quiet[k]:
-            status[k], reason[k] = "dead", f"dead (RMS {rms[k] / median if median else 0:.2g} of the gather's median)"
+            share = rms[k] / median if median else 0.0
+            status[k], reason[k] = "dead", f"dead (no signal: RMS {share:.1%} of the gather's median)"
         else:
             status[k], reason[k] = "at shot", "geophone at the shot"
 
@@ -369,7 +384,8 @@ def _segment(fine, start, pre, length):
 
 def _match(filtered, centre, seg, pre, search):
     """Best match of waveform ``seg`` (onset at index ``pre``) with each row within
-    ``search`` samples of ``centre``: (onset, amplitude, sign, slope energy), samples."""
+    ``search`` samples of ``centre``: (onset in samples, amplitude, sign, whether the
+    best match lies at the edge of the search)."""
     n = filtered.shape[0]
     width = seg.size + 2 * search
     window, start = _windows(filtered, np.round(centre).astype(int) - pre - search, width)
@@ -392,7 +408,8 @@ def _match(filtered, centre, seg, pre, search):
     inside = (best > 0) & (best < cc.shape[1] - 1) & (curve < 0)
     shift = np.where(inside, 0.5 * (left - right) / np.where(inside, curve, 1.0), 0.0)
     amplitude = np.abs(dots[rows, best]) / float(seg @ seg)
-    return start + best + shift + pre, amplitude, np.sign(dots[rows, best])
+    edge = (best == 0) | (best == cc.shape[1] - 1)
+    return start + best + shift + pre, amplitude, np.sign(dots[rows, best]), edge
 
 
 def _sigma(noise_raw, amplitude, seg):
@@ -412,8 +429,9 @@ def _refine(filtered, raw, k_aic, snr, noise_r, period, live):
     again on those (sharper, as they are aligned to a fraction of a sample) it gives
     the final ones.
 
-    Returns (onset, amplitude or None, sigma, reversed, waveform or None), in samples;
-    without a waveform, the AIC onsets and a quarter-period sigma.
+    Returns (onset, amplitude or None, sigma, reversed, waveform or None, match at the
+    edge of its search), in samples; without a waveform, the AIC onsets and a
+    quarter-period sigma.
     """
     n = filtered.shape[0]
     pre = period // 4
@@ -421,12 +439,13 @@ def _refine(filtered, raw, k_aic, snr, noise_r, period, live):
     for _ in range(2):
         found = _template(filtered, raw, centre, snr, period, live, reach=search)
         if found is None:
-            return k_aic.astype(float), None, np.full(n, period / 4.0), np.zeros(n, dtype=bool), None
+            none = np.zeros(n, dtype=bool)
+            return k_aic.astype(float), None, np.full(n, period / 4.0), none, None, none
         fine, t0, used = found
         seg = _segment(fine, t0, pre, pre + period)
-        centre, amplitude, sign = _match(filtered, centre, seg, pre, search)
+        centre, amplitude, sign, edge = _match(filtered, centre, seg, pre, search)
         search = max(period // 8, 1)
-    return centre, amplitude, _sigma(noise_r, amplitude, seg), sign < 0, (seg, pre, used)
+    return centre, amplitude, _sigma(noise_r, amplitude, seg), sign < 0, (seg, pre, used), edge
 
 
 def _recover_near_trend(picks, filtered, noise_f, noise_r, gather, period, waveform, settings):
@@ -441,7 +460,7 @@ def _recover_near_trend(picks, filtered, noise_f, noise_r, gather, period, wavef
         if not np.isfinite(predicted):
             continue
         centre = np.array([(predicted - gather.delay_s) / dt])
-        onset_k, amp, _ = _match(filtered[k:k + 1], centre, seg, pre, max(period // 8, 1))
+        onset_k, amp, _, _ = _match(filtered[k:k + 1], centre, seg, pre, max(period // 8, 1))
         snr = amp[0] / max(noise_f[k], 1e-300)
         new_s = gather.delay_s + onset_k[0] * dt
         sigma = _sigma(noise_r[k:k + 1], amp, seg)[0] * dt
