@@ -5,7 +5,7 @@ traces read as clearly as near ones), as a wiggle with its positive lobes filled
 increasing downwards and geophone position across; each pick is a short bar across its
 trace with a +-1 sigma span along it, automatic picks in one colour, picks re-made from
 the neighbours' trend or by hand in others, and traces without a pick marked at the top
-with a letter for the reason.
+with a letter for the reason (and drawn in grey).
 """
 
 from __future__ import annotations
@@ -42,14 +42,17 @@ def gather_figure(gather, rows, title=None):
     spacing = float(np.median(np.diff(np.sort(gather.receiver_x)))) if gather.n_traces > 1 else 1.0
     half = 0.45 * spacing
     data = (gather.data - gather.data.mean(axis=1, keepdims=True)) * gather.polarity[:, None]
+    by_receiver = {round(r.receiver_x, 4): r for r in rows}
     for k in range(gather.n_traces):
         trace = data[k, shown]
         peak = np.max(np.abs(trace))
         wiggle = trace / peak * half if peak > 0 else trace * 0
         x0 = gather.receiver_x[k]
-        ax.plot(x0 + wiggle, t_ms[shown], color=style.BLACK, lw=0.4)
-        ax.fill_betweenx(t_ms[shown], x0, x0 + np.maximum(wiggle, 0), color=style.BLACK, lw=0)
-    by_receiver = {round(r.receiver_x, 4): r for r in rows}
+        row = by_receiver.get(round(x0, 4))
+        # traces without a pick in grey, so that the eye runs along the picked ones
+        ink = style.BLACK if row is None or row.picked else style.GREY
+        ax.plot(x0 + wiggle, t_ms[shown], color=ink, lw=0.4)
+        ax.fill_betweenx(t_ms[shown], x0, x0 + np.maximum(wiggle, 0), color=ink, lw=0)
     labelled = set()
     for x0 in gather.receiver_x:
         r = by_receiver.get(round(x0, 4))

@@ -88,7 +88,7 @@ class PickSettings:
         Traces whose first break is weaker than this many noise standard deviations (on
         the filtered trace) get no pick.
     consistency_sigmas : float
-        A pick further than this many combined sigmas (and a quarter period) from every
+        A pick further than this many combined sigmas (and an eighth of a period) from every
         prediction of its neighbours is re-picked about the trend or dropped.
     """
 

@@ -106,18 +106,18 @@ def keep_user_edits(rows, out_path):
     if not table_path.exists():
         raise InputError(f"exists and was not written by tomo pick (no {table_path.name} beside it); "
                          f"choose another --out or move it away", path=out_path)
-    previous = {(round(parse_float(f[h.index("source_x")], table_path, n, "source_x"), WRITTEN_DECIMALS),
-                 round(parse_float(f[h.index("receiver_x")], table_path, n, "receiver_x"), WRITTEN_DECIMALS)): f
-                for h, rs in [read_csv_rows(table_path)] for n, f in rs}
+    theader, table_rows = read_csv_rows(table_path)
+    for name in ("source_x", "receiver_x", "status", "time_ms", "sigma_ms"):
+        if name not in theader:
+            raise InputError(f"missing column '{name}': not a trace table of tomo pick", path=table_path)
+    previous = {_key(f, theader, table_path, n): f for n, f in table_rows}
     header, file_rows = read_csv_rows(out_path)
     for name in ("source_x", "receiver_x", "time_ms"):
         if name not in header:
             raise InputError(f"missing required column '{name}'", path=out_path)
-    theader, _ = read_csv_rows(table_path)
     current = {}
     for lineno, f in file_rows:
-        key = (round(parse_float(f[header.index("source_x")], out_path, lineno, "source_x"), WRITTEN_DECIMALS),
-               round(parse_float(f[header.index("receiver_x")], out_path, lineno, "receiver_x"), WRITTEN_DECIMALS))
+        key = _key(f, header, out_path, lineno)
         time_ms = parse_float(f[header.index("time_ms")], out_path, lineno, "time_ms")
         sigma_ms = parse_float(f[header.index("sigma_ms")], out_path, lineno, "sigma_ms") \
             if "sigma_ms" in header else np.nan
@@ -147,6 +147,12 @@ def keep_user_edits(rows, out_path):
     return [f"kept {n} pick(s) {what} by hand in {out_path}" for what, n in counts.items() if n]
 
 
+def _key(fields, header, path, lineno):
+    """(source_x, receiver_x) of a CSV row, rounded as written."""
+    return tuple(round(parse_float(fields[header.index(name)], path, lineno, name), WRITTEN_DECIMALS)
+                 for name in ("source_x", "receiver_x"))
+
+
 def _same(a, b):
     tol = 1.5 * 10.0 ** -WRITTEN_DECIMALS
     return abs(a[0] - b[0]) <= tol and (not np.isfinite(a[1]) or abs(a[1] - b[1]) <= tol)
@@ -167,8 +173,7 @@ def read_corrections(path):
     for lineno, f in rows:
         if len(f) < len(header):
             raise InputError(f"expected {len(header)} fields, got {len(f)}", path=path, line=lineno)
-        key = (round(parse_float(f[header.index("source_x")], path, lineno, "source_x"), WRITTEN_DECIMALS),
-               round(parse_float(f[header.index("receiver_x")], path, lineno, "receiver_x"), WRITTEN_DECIMALS))
+        key = _key(f, header, path, lineno)
         text = f[header.index("time_ms")]
         time_s = None if text.lower() == "drop" else parse_float(text, path, lineno, "time_ms") * 1e-3
         if time_s is not None and time_s <= 0:
