@@ -163,7 +163,8 @@ def main(argv=None):
         for it, n, fw, ry, so, c2, solver in lines:
             print(f"{it:>4} {n:>6} {fw:>10.2f} {ry:>8.2f} {so:>8.2f} {c2:>8.3f}  {solver}")
         passes = run.timing["passes"]
-        print(f"stop: {run.stop_reason} after {run.iterations} iterations, chi2 {run.chi2:.3f}, RMS {run.rms_ms:.3f} ms")
+        print(f"stop: {run.stop_reason} after {run.iterations} iterations, chi2 {run.chi2:.3f}, "
+              f"RMS {run.rms_ms:.3f} ms")
         print(f"total {total:.1f} s; {passes} forward passes x {one:.2f} s plain forward = {passes * one:.1f} s "
               f"-> ratio {total / (passes * one):.2f} (goal <= 2)")
         print(f"forward share of the passes (in the run): {in_pass:.1f} s -> total / that = {total / in_pass:.2f}")

@@ -42,7 +42,8 @@ def main():
         t2 = time.perf_counter()
         interpret_line(picks, grm=True)
         t3 = time.perf_counter()
-        print(f"{n_geo:9d} {n_shots:5d} {len(picks):6d} {t1 - t0:8.2f} {t2 - t1:9.2f} {t3 - t2:7.2f} {len(result.layers):6d}")
+        print(f"{n_geo:9d} {n_shots:5d} {len(picks):6d} {t1 - t0:8.2f} {t2 - t1:9.2f} {t3 - t2:7.2f} "
+              f"{len(result.layers):6d}")
 
 
 if __name__ == "__main__":

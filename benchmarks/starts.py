@@ -140,8 +140,8 @@ def main(argv=None):
                       f"{wall:.0f} s ({run.stop_reason})", file=sys.stderr)
             if len(depths) == 2:
                 diff = depths["layered"] - depths["gradient"]
-                rows.append((name, seed, "both", np.nan, 0, np.sqrt(np.nanmean(diff ** 2)), np.nan, np.nanmax(np.abs(diff)),
-                             int(np.sum(np.isfinite(diff))), 0.0))
+                rows.append((name, seed, "both", np.nan, 0, np.sqrt(np.nanmean(diff ** 2)), np.nan,
+                             np.nanmax(np.abs(diff)), int(np.sum(np.isfinite(diff))), 0.0))
     print(f"\n{'line':>8} {'seed':>4} {'start':>9} {'chi2':>6} {'iter':>4} {'mean |err| m':>12} "
           f"{'mean err m':>10} {'max |err| m':>11} {'columns':>7} {'wall s':>6}")
     for name, seed, kind, chi2, it, mean_abs, mean, worst, n, wall in rows:

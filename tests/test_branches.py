@@ -92,7 +92,8 @@ def test_branch_count_and_breaks_overridable():
     assert len(fit_side(side(u, t), n_branches=2).branches) == 2
     fit = fit_side(side(u, t), breaks_m=[11.0, 37.0])
     assert fit.chosen_by == "breaks"
-    assert [b.n_picks for b in fit.branches] == [int((u <= 11).sum()), int(((u > 11) & (u <= 37)).sum()), int((u > 37).sum())]
+    expected = [int((u <= 11).sum()), int(((u > 11) & (u <= 37)).sum()), int((u > 37).sum())]
+    assert [b.n_picks for b in fit.branches] == expected
 
 
 def test_too_many_branches_requested():

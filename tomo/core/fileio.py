@@ -12,7 +12,8 @@ from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float", "read_toml", "check_output_path", "prepare_folder"]
+__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float", "read_toml", "check_output_path",
+           "prepare_folder"]
 
 
 @contextlib.contextmanager

@@ -26,7 +26,8 @@ class FigureSpec:
 
 FIGURES = (
     FigureSpec("velocity", "Velocity section over the terrain. Pale grey: no ray reaches these cells (below the "
-               "deepest ray); dashed line: depth of investigation, above which 95 % of the ray length lies.", section.velocity_section),
+               "deepest ray); dashed line: depth of investigation, above which 95 % of the ray length lies.",
+               section.velocity_section),
     FigureSpec("coverage", "Ray coverage: ray length per cell; zero-coverage cells blank.", section.coverage_section),
     FigureSpec("traveltimes", "Observed picks and times computed in the final model, every shot.", fit.traveltime_fit),
     FigureSpec("residuals", "Residuals against offset and their distribution beside the pick uncertainty.",

@@ -58,7 +58,8 @@ def view_window(run):
     xs = np.concatenate([shots[:, 0], geos[:, 0]])
     spacing = float(np.median(np.diff(np.unique(geos[:, 0])))) if len(geos) > 1 else 1.0
     x_min, x_max = xs.min() - spacing, xs.max() + spacing
-    x_min, x_max = max(x_min, run.x[0] - 0.5 * abs(run.x[1] - run.x[0])), min(x_max, run.x[-1] + 0.5 * abs(run.x[1] - run.x[0]))
+    half_cell = 0.5 * abs(run.x[1] - run.x[0])
+    x_min, x_max = max(x_min, run.x[0] - half_cell), min(x_max, run.x[-1] + half_cell)
     grid_x = (run.x >= x_min) & (run.x <= x_max)
     ground = ground_elevation(run, np.linspace(x_min, x_max, 200))
     z_max = float(ground.max())
@@ -116,7 +117,8 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
     draw_boreholes(ax, run, height)
     if doi:
         line = investigation_elevation(run)
-        ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6, label="depth of investigation (95 % of ray length above)")
+        ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6,
+                label="depth of investigation (95 % of ray length above)")
     ax.set_xlim(x_min, x_max)
     ax.set_ylim(z_min, z_max)
     ax.set_aspect(ve)
@@ -168,7 +170,8 @@ def colour_range(run):
     lo, hi = float(values.min()), float(values.max())
     shown = v[cov]
     below, above = bool(np.any(shown < lo)), bool(np.any(shown > hi))
-    extend = {(False, False): "neither", (True, False): "min", (False, True): "max", (True, True): "both"}[(below, above)]
+    extend = {(False, False): "neither", (True, False): "min", (False, True): "max",
+              (True, True): "both"}[(below, above)]
     return lo, hi, extend
 
 
@@ -212,8 +215,8 @@ def velocity_section(run, contours_m_s=None, vertical_exaggeration=None, title="
     xe, ze = _edges(run.x), _edges(run.z)
     finite = np.asarray(run.velocity)[cov]
     vmin, vmax, extend = colour_range(run)
-    image = ax.pcolormesh(xe, ze, display_cells(run, v), cmap=style.VELOCITY_CMAP, vmin=vmin, vmax=vmax, shading="flat", zorder=1,
-                          rasterized=True)
+    image = ax.pcolormesh(xe, ze, display_cells(run, v), cmap=style.VELOCITY_CMAP, vmin=vmin, vmax=vmax,
+                          shading="flat", zorder=1, rasterized=True)
     image.set_clip_path(clip)
     levels = contour_levels(finite) if contours_m_s is None else np.asarray(contours_m_s, float)
     if levels.size and finite.size:

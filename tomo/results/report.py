@@ -328,7 +328,8 @@ def _misfit_section(run):
     lam = np.asarray(run.history.get("lambda", []), float)
     parts = [f"<p>Final chi-squared <b>{run.chi2:.2f}</b> (target 1: the picks explained to their uncertainty), "
              f"RMS residual <b>{run.rms_ms:.2f} ms</b> after {run.iterations} iteration(s); "
-             f"{'converged' if run.converged else 'not converged'}: {_esc(run.stop_reason or 'no reason recorded')}.</p>"]
+             f"{'converged' if run.converged else 'not converged'}: "
+             f"{_esc(run.stop_reason or 'no reason recorded')}.</p>"]
     rows = []
     for k in range(chi2.size):
         rows.append((str(k), f"{chi2[k]:.3g}", f"{rms[k]:.3f}" if k < rms.size else "-",
@@ -392,8 +393,8 @@ def build_report(run, source=None, skip_note=None, figure_pngs=None, other=None,
 <style>{_CSS}</style></head>
 <body>
 <h1>{_esc(title)}</h1>
-<p class="meta">Run file {_esc(source or '(in memory)')}, made {_esc(run.created or '?')} by tomo {_esc(run.tomo_version)};
-report made {created} by tomo {__version__}.</p>
+<p class="meta">Run file {_esc(source or '(in memory)')}, made {_esc(run.created or '?')}
+by tomo {_esc(run.tomo_version)}; report made {created} by tomo {__version__}.</p>
 <div class="box"><b>Read the cautions at the end before using these results.</b> The section is one of many
 models that fit the picks; depths need calibration against boreholes, and designs need review by a licensed
 professional under the local codes.</div>

@@ -44,8 +44,10 @@ def read_mesh_spec(path):
         if key not in _SPEC_KEYS:
             raise InputError(f"unknown key (expected one of {', '.join(_SPEC_KEYS)})", path=path, field=key)
         kind = _SPEC_KEYS[key]
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or (kind is int and not isinstance(value, int)):
-            raise InputError(f"expected {'an integer' if kind is int else 'a number'}, got {value!r}", path=path, field=key)
+        wrong_kind = kind is int and not isinstance(value, int)
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or wrong_kind:
+            expected = "an integer" if kind is int else "a number"
+            raise InputError(f"expected {expected}, got {value!r}", path=path, field=key)
         if not math.isfinite(value) or value <= 0:
             raise InputError(f"must be positive, got {value!r}", path=path, field=key)
         values[key] = kind(value)

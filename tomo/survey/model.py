@@ -167,7 +167,8 @@ def read_model(path):
         gradient = _number(table, "gradient", path, where, default=0.0)
         last = k == len(raw_layers) - 1
         if last and "base" in table:
-            raise InputError("the last layer has no base (it continues to the bottom of the grid)", path=path, field=f"{where}.base")
+            raise InputError("the last layer has no base (it continues to the bottom of the grid)", path=path,
+                             field=f"{where}.base")
         if not last and "base" not in table:
             raise InputError("missing (every layer but the last needs a base)", path=path, field=f"{where}.base")
         base = None

@@ -104,7 +104,8 @@ class Picks:
 
     def with_times(self, time_s, sigma_s=None):
         """A copy with new times (s) and uncertainties (s)."""
-        return replace(self, time_s=np.asarray(time_s, float), sigma_s=None if sigma_s is None else np.broadcast_to(np.asarray(sigma_s, float), self.source_x.shape).copy(), notices=list(self.notices))
+        sigma = None if sigma_s is None else np.broadcast_to(np.asarray(sigma_s, float), self.source_x.shape).copy()
+        return replace(self, time_s=np.asarray(time_s, float), sigma_s=sigma, notices=list(self.notices))
 
 
 def _unique_points(x, z):
@@ -148,7 +149,8 @@ def read_picks(path, terrain=None, layout=False):
     required = _REQUIRED if layout else _REQUIRED + ("time_ms",)
     for name in required:
         if name not in header:
-            raise InputError(f"missing required column '{name}' (header has: {', '.join(header)})", path=path, line=None)
+            raise InputError(f"missing required column '{name}' (header has: {', '.join(header)})", path=path,
+                             line=None)
     known = set(required) | set(_OPTIONAL) | ({"time_ms"} if layout else set())
     notices = []
     ignored = [h for h in header if h not in known]
@@ -224,7 +226,8 @@ def _place_on_ground(x, z, terrain, path, lines, role, notices):
         # positions rounded in a file (0.1 mm) sit a hair above the terrain: not worth a notice
         snapped = above > 1e-3
         if np.any(snapped):
-            notices.append(f"{path}: {int(snapped.sum())} {role} elevation(s) up to {ABOVE_GROUND_TOLERANCE_M} m above the terrain were put on it")
+            notices.append(f"{path}: {int(snapped.sum())} {role} elevation(s) up to {ABOVE_GROUND_TOLERANCE_M} m "
+                           "above the terrain were put on it")
         return np.minimum(z, ground)
     if z is None:
         return np.zeros_like(x)
@@ -243,12 +246,14 @@ def check_picks(picks):
     same = (np.abs(picks.source_x - picks.receiver_x) < 1e-6) & (np.abs(picks.source_z - picks.receiver_z) < 1e-6)
     if np.any(same):
         k = int(np.flatnonzero(same)[0])
-        raise InputError(f"geophone on top of its shot (x = {picks.source_x[k]:g} m)", path=path, line=where(k), field="receiver_x")
+        raise InputError(f"geophone on top of its shot (x = {picks.source_x[k]:g} m)", path=path, line=where(k),
+                         field="receiver_x")
     if picks.time_s is not None:
         t = picks.time_s
         if not np.all(np.isfinite(t)) or np.any(t <= 0):
             k = int(np.flatnonzero(~(np.isfinite(t) & (t > 0)))[0])
-            raise InputError(f"time must be positive and finite, got {t[k]:g} s", path=path, line=where(k), field="time_ms")
+            raise InputError(f"time must be positive and finite, got {t[k]:g} s", path=path, line=where(k),
+                             field="time_ms")
     if picks.sigma_s is not None:
         s = picks.sigma_s
         if not np.all(np.isfinite(s)) or np.any(s <= 0):

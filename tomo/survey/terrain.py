@@ -110,7 +110,8 @@ def read_terrain(path):
         x = parse_float(fields[ix], path, lineno, "x")
         z = parse_float(fields[iz], path, lineno, "z")
         if previous is not None and x <= previous:
-            raise InputError(f"x must increase along the file ({x:g} after {previous:g})", path=path, line=lineno, field="x")
+            raise InputError(f"x must increase along the file ({x:g} after {previous:g})", path=path, line=lineno,
+                             field="x")
         previous = x
         xs.append(x)
         zs.append(z)

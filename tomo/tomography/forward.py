@@ -246,7 +246,8 @@ def travel_times(mesh, slowness, picks, order=2, source_radius=DEFAULT_SOURCE_RA
     bad = ~mesh.contains(targets_xz[:, 0], targets_xz[:, 1])
     if np.any(bad):
         k = int(np.flatnonzero(bad)[0])
-        raise InputError(f"station at x = {targets_xz[k, 0]:g} m, z = {targets_xz[k, 1]:g} m is outside the ground of the mesh")
+        raise InputError(f"station at x = {targets_xz[k, 0]:g} m, z = {targets_xz[k, 1]:g} m "
+                         "is outside the ground of the mesh")
     groups = [np.flatnonzero(origin_index == k) for k in range(len(origins))]
     # a few origins per task: each task carries the grids, and the progress count moves
     with Workers(workers) as pool:

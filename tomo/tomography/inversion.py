@@ -224,7 +224,8 @@ def build_problem(picks, mesh, start_velocity, settings, reference_velocity=None
         m_ref, reference = np.zeros(int(ground.sum())), "none"
     if picks.sigma_s is None:
         sigma = np.full(len(picks), settings.default_sigma_ms * 1e-3)
-        notes.append(f"the picks give no uncertainties: sigma = {settings.default_sigma_ms:g} ms assumed for every pick")
+        notes.append(f"the picks give no uncertainties: sigma = {settings.default_sigma_ms:g} ms assumed "
+                     "for every pick")
     else:
         sigma = np.asarray(picks.sigma_s, float)
     recorded = settings.as_dict()
