@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import numpy as np
@@ -75,3 +76,33 @@ def test_demo_files_missing_is_a_clear_error(monkeypatch, tmp_path, capsys):
     assert len(err.splitlines()) == 1 and "demo file(s) missing" in err
     assert not (tmp_path / "out").exists()
     assert demo.DEMO_FILES[0] in err
+
+
+def _readme_block(marker):
+    """The fenced block right after ``<!-- marker -->`` in README.md."""
+    text = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    after = text.split(f"<!-- {marker} -->", 1)[1]
+    return after.split("```", 2)[1].split("\n", 1)[1]
+
+
+def test_readme_python_example_runs_and_agrees_with_the_demo(demo_run, tmp_path):
+    # The README's example, run as a script from an empty folder, prints what the README
+    # shows, and its numbers are the demo's: the same picks, the same defaults, through
+    # the API instead of the command line (chi-squared and depths to the printed digits).
+    import subprocess
+    import sys
+
+    script = tmp_path / "example.py"
+    script.write_text(_readme_block("python-example"), encoding="utf-8")
+    done = subprocess.run([sys.executable, str(script)], cwd=tmp_path, capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout == _readme_block("python-example-output")
+    run = read_run(demo_run / "run.h5")
+    assert f"chi-squared {run.chi2:.3f} (target 1), RMS {run.rms_ms:.3f} ms, {run.iterations} iterations" in done.stdout
+    velocities = [layer["velocity_m_s"] for layer in json.loads((demo_run / "layers.json").read_text())["layers"]]
+    surface = contour_surface(run, float(np.mean(velocities[-2:])))
+    for x in (20.0, 80.0, 100.0):
+        j = int(np.argmin(np.abs(surface.x - x)))
+        assert f"x = {x:5.1f} m: the {surface.velocity_m_s:.0f} m/s surface is {surface.depth_m[j]:.1f} m deep" \
+            in done.stdout
+    assert (tmp_path / "run.h5").is_file()

@@ -33,7 +33,7 @@ _LAZY = {
     **{name: "tomo.api" for name in (
         "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile",
         "invert", "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface",
-        "default_settings", "Survey", "Run", "LayeredResult", "InversionSettings")},
+        "default_settings", "demo_dir", "Survey", "Run", "LayeredResult", "InversionSettings")},
     "Surface": "tomo.analysis.surface",
     "velocity_section": "tomo.figures.section",
     "coverage_section": "tomo.figures.section",

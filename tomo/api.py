@@ -52,8 +52,8 @@ from .tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradi
 if TYPE_CHECKING:
     from .analysis.surface import Surface
 
-__all__ = ["NO_TERRAIN_NOTE", "read_survey", "check_survey", "interpret_layers", "write_layers", "read_layers",
-           "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
+__all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interpret_layers", "write_layers",
+           "read_layers", "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
            "QC_DEFAULTS", "LAYERS_DEFAULTS", "MAX_BRANCHES", "check_branch_count", "synthesize",
            "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels",
            "write_report", "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport",
@@ -80,6 +80,25 @@ QC_DEFAULTS = _defaults(check_line)
 LAYERS_DEFAULTS = _defaults(interpret_line)
 
 PathLike = str | os.PathLike
+
+
+def demo_dir(required: Sequence[str] = ("picks.csv", "terrain.csv")) -> Path:
+    """The folder of the invented demo line shipped with tomo (package data, found with
+    :mod:`importlib.resources`): ``picks.csv``, ``terrain.csv``, ``site.toml`` (the model
+    the picks were made from), ``layout.csv``, ``stations.csv``, ``boreholes.csv``.
+
+    Raises
+    ------
+    InputError
+        Naming the folder, when a ``required`` file is missing (a broken installation).
+    """
+    from importlib.resources import files
+
+    folder = Path(str(files("tomo") / "data" / "demo"))
+    missing = [name for name in required if not (folder / name).is_file()]
+    if missing:
+        raise InputError(f"demo file(s) missing: {', '.join(missing)} (reinstall tomo)", path=folder)
+    return folder
 
 
 def default_settings() -> InversionSettings:

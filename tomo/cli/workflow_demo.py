@@ -16,7 +16,7 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..core.errors import InputError, TomoError
+from ..core.errors import TomoError
 
 __all__ = ["demo_dir", "DEMO_FILES", "run_demo", "DemoResult"]
 
@@ -30,16 +30,11 @@ STEPS = 6
 
 
 def demo_dir():
-    """The demo line's folder inside the installed package (``tomo/data/demo``, package
-    data read with :mod:`importlib.resources`); InputError naming the folder if its
-    files are missing (a broken installation)."""
-    from importlib.resources import files
+    """The demo line's folder inside the installed package (:func:`tomo.api.demo_dir`),
+    checked for the files the demo needs."""
+    from ..api import demo_dir as folder
 
-    folder = Path(str(files("tomo") / "data" / "demo"))
-    missing = [name for name in DEMO_FILES if not (folder / name).is_file()]
-    if missing:
-        raise InputError(f"demo file(s) missing: {', '.join(missing)} (reinstall tomo)", path=folder)
-    return folder
+    return folder(DEMO_FILES)
 
 
 @dataclass
