@@ -10,7 +10,9 @@ First-arrival picks of a line of geophones in; pick QC, a layered interpretation
 
 Workflow functions (:mod:`tomo.api`): ``read_survey``, ``check_survey``,
 ``interpret_layers``, ``read_layers``, ``write_layers``, ``invert``, ``read_run``,
-``compare_runs``, ``plot_run``, ``write_report``, ``write_grid``, ``write_surface``.
+``compare_runs``, ``plot_run``, ``write_report``, ``write_grid``, ``write_surface``,
+``export`` (CSV, netCDF, GeoJSON, DXF), ``add_boreholes``, ``pick_records`` (SEG-2 /
+SEG-Y shot records to picks), ``synthesize``, ``demo_dir``.
 Types: ``Survey``, ``LayeredResult``, ``Run``, ``Surface``, ``InversionSettings``.
 Figures of a run, returning matplotlib figures: ``velocity_section``,
 ``coverage_section``, ``traveltime_fit``, ``residual_figure``, ``misfit_history``,
@@ -33,6 +35,7 @@ _LAZY = {
     **{name: "tomo.api" for name in (
         "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile",
         "invert", "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface",
+        "export", "add_boreholes", "pick_records", "synthesize",
         "default_settings", "demo_dir", "Survey", "Run", "LayeredResult", "InversionSettings")},
     "Surface": "tomo.analysis.surface",
     "velocity_section": "tomo.figures.section",
