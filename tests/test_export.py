@@ -219,7 +219,7 @@ def test_walkthrough_python_example_runs(tmp_path, base_run, monkeypatch, capsys
     from pathlib import Path
 
     text = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
-    code = re.search(r"```python\n(.*?)```", text, re.S).group(1)
+    code = re.search(r"<!-- run-file-example -->\n```python\n(.*?)```", text, re.S).group(1)
     run = base_run[0]
     (tmp_path / "tomo-demo").mkdir()
     write_run(tmp_path / "tomo-demo" / "run.h5", replace(run, velocity=run.velocity * 2.0))
