@@ -25,7 +25,6 @@ import inspect
 import logging
 import os
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal
 
@@ -49,8 +48,9 @@ from .tomography.inversion import invert as _invert
 from .tomography.mesh import Mesh, mesh_for_picks
 from .tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
 
-if TYPE_CHECKING:
+if TYPE_CHECKING:  # imported for the type hints only: both load matplotlib
     from .analysis.surface import Surface
+    from .results.exporting import Exported
 
 __all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interpret_layers", "write_layers",
            "read_layers", "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
@@ -58,7 +58,7 @@ __all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interp
            "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels",
            "write_report", "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport",
            "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path",
-           "export", "Exported", "pick_records", "plot_gathers", "PickSettings", "RecordSettings"]
+           "export", "pick_records", "plot_gathers", "PickSettings", "RecordSettings"]
 
 #: Gaussian smoothing of the layered start, model cells (about one station spacing).
 START_SMOOTHING_CELLS = LAYERED_SMOOTHING_CELLS
@@ -131,6 +131,12 @@ def interpret_layers(survey: Survey, **options: Any) -> LayeredResult:
     LayeredResult
         Layer velocities (m/s) and thicknesses (m), per-shot fits, the delay-time
         profile, warnings and the cautions that go with every layered result.
+
+    Notes
+    -----
+    A layer slower than the one above it, or too thin to give first arrivals of its
+    own, leaves no trace in the picks and puts the depths below it wrong; velocities
+    do not identify rock types; calibrate against boreholes (``result.cautions``).
     """
     return interpret_line(survey.picks, terrain=survey.terrain, **options)
 
@@ -213,6 +219,25 @@ def _check_start(start: str, layers: Any, branches: int | None, start_smoothing:
     return START_SMOOTHING_CELLS if start_smoothing is None else check_smoothing(start_smoothing)
 
 
+def _start_model(survey: Survey, grid: Mesh, terrain: Any, start: str, layers: LayeredResult | None,
+                 branches: int | None, smoothing: float, notes: list[str]) -> tuple[Any, Any, str]:
+    """The starting velocity (m/s on the grid), the layered result it came from (a dict,
+    or None) and the start used; appends what the user should know to ``notes``."""
+    if start == "layered":
+        try:
+            velocity, layered = layered_start(survey.picks, grid, terrain, n_branches=branches,
+                                              smooth_cells=smoothing, result=layers)
+            return velocity, layered, start
+        except TomoError as exc:
+            # a line the layered methods cannot read still gets a tomogram, from the
+            # gradient start, with a note saying so
+            notes.append(f"layered starting model not available ({exc}); the gradient start was used")
+    velocity, info = gradient_start(survey.picks, grid, return_fit=True)
+    notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
+                 f"fitted to the first arrivals")
+    return velocity, None, "gradient"
+
+
 def _log_progress(info: IterationInfo) -> None:
     logger.info("%s", info)
 
@@ -270,6 +295,16 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
         For a bad setting, mesh spec, layers file or starting-model option.
     InversionInterrupted
         On Ctrl-C (a KeyboardInterrupt); ``out`` then holds the last finished iteration.
+
+    Notes
+    -----
+    A tomogram is one of many models that fit the picks: below the depth of
+    investigation it shows the starting model, sharp boundaries come out smeared, and
+    first arrivals do not see into a layer slower than the one above. Compare runs from
+    both starts (:func:`compare_runs`), calibrate against boreholes; designs need
+    review by a licensed professional. With ``workers`` > 1 (the default 2) the worker
+    processes re-import a script: call this under ``if __name__ == "__main__":`` there
+    (a notebook needs no guard).
     """
     opts = _settings(settings)
     smoothing = _check_start(start, layers, branches, start_smoothing)
@@ -283,20 +318,7 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     terrain, ground_notes = survey.ground()
     notes += ground_notes
     grid, spec, mesh_file = _mesh(survey, terrain, mesh)
-    velocity, layered, start_used = None, None, start
-    if start == "layered":
-        try:
-            velocity, layered = layered_start(survey.picks, grid, terrain, n_branches=branches,
-                                              smooth_cells=smoothing, result=layers)
-        except TomoError as exc:
-            # a line the layered methods cannot read still gets a tomogram, from the
-            # gradient start, with a note saying so
-            notes.append(f"layered starting model not available ({exc}); the gradient start was used")
-            start_used = "gradient"
-    if start_used == "gradient":
-        velocity, info = gradient_start(survey.picks, grid, return_fit=True)
-        notes.append(f"starting model: v = {info['v0_m_s']:.0f} m/s + {info['k_per_s']:.2f} 1/s x depth "
-                     f"fitted to the first arrivals")
+    velocity, layered, start_used = _start_model(survey, grid, terrain, start, layers, branches, smoothing, notes)
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
              "mesh_spec": spec.as_dict(), "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,
@@ -407,27 +429,6 @@ def write_surface(run: Run, surface: Surface, path: PathLike, source: PathLike |
     return write(path, run, surface.velocity_m_s, source=None if source is None else str(source), surface=surface)
 
 
-@dataclass
-class Exported:
-    """What :func:`export` wrote (None or 0 for what was not asked for).
-
-    Attributes
-    ----------
-    grid_cells : int
-        Rows of the grid CSV (ground cells).
-    surfaces : list of SectionSurface
-        The surfaces exported: the contours asked for (or the layered refractor's),
-        then the layered delay-time refractors; the surface CSV holds the first.
-    geojson_features : int
-    dxf_layers : int
-    """
-
-    grid_cells: int = 0
-    surfaces: list[Any] = field(default_factory=list)
-    geojson_features: int = 0
-    dxf_layers: int = 0
-
-
 def export(run: Run, *, grid: PathLike | None = None, surface: PathLike | None = None,
            netcdf: PathLike | None = None, geojson: PathLike | None = None, dxf: PathLike | None = None,
            contours_m_s: Sequence[float] | None = None, crs: int | str | None = None,
@@ -448,57 +449,16 @@ def export(run: Run, *, grid: PathLike | None = None, surface: PathLike | None =
         EPSG code of the run's stations when it was inverted without one.
     source : path, optional
         The run file's name, written into the exports' headers.
+
+    Returns
+    -------
+    Exported
+        What was written (rows, surfaces, features, layers).
     """
-    from dataclasses import replace
+    from .results.exporting import export_run
 
-    from .results.surfaces import export_contours, section_surfaces
-    from .survey.crs import check_crs
-
-    outputs = {"grid": grid, "surface": surface, "netcdf": netcdf, "geojson": geojson, "dxf": dxf}
-    if not any(outputs.values()):
-        raise InputError("nothing to export: give --grid, --surface, --netcdf, --geojson and/or --dxf")
-    if surface and contours_m_s and len(contours_m_s) > 1:
-        raise InputError("--surface writes one surface: give one --contour V", field="--contour")
-    if crs is not None:
-        if run.stations is None:
-            raise InputError("the run has no stations to place with --crs (invert with --stations)", field="--crs")
-        stations: Any = run.stations
-        run.stations = replace(stations, crs=check_crs(crs))
-    done = Exported()
-    if surface or geojson or dxf:
-        wanted = "--surface" if surface and not (geojson or dxf) else "the export"
-        done.surfaces = section_surfaces(run, export_contours(run, contours_m_s, needed_for=wanted))
-    if geojson:
-        from .results.geojson import feature_collection
-
-        feature_collection(run, done.surfaces)  # refuses a run without map coordinates now, not halfway
-    for path in outputs.values():
-        if path:
-            check_output_path(path)
-    _write_exports(run, done, outputs, None if source is None else str(source))
-    return done
-
-
-def _write_exports(run: Run, done: Exported, outputs: dict[str, Any], source: str | None) -> None:
-    from .results.export import write_grid as grid_csv
-    from .results.export import write_surface as surface_csv
-
-    if outputs["grid"]:
-        done.grid_cells = grid_csv(outputs["grid"], run, source=source)
-    if outputs["surface"]:
-        surface_csv(outputs["surface"], run, done.surfaces[0].velocity_m_s, source=source)
-    if outputs["netcdf"]:
-        from .results.netcdf import write_netcdf
-
-        write_netcdf(outputs["netcdf"], run, source=source)
-    if outputs["geojson"]:
-        from .results.geojson import write_geojson
-
-        done.geojson_features = len(write_geojson(outputs["geojson"], run, done.surfaces)["features"])
-    if outputs["dxf"]:
-        from .results.dxf import write_dxf
-
-        done.dxf_layers = len(write_dxf(outputs["dxf"], run, done.surfaces, source=source))
+    return export_run(run, {"grid": grid, "surface": surface, "netcdf": netcdf, "geojson": geojson, "dxf": dxf},
+                      contours_m_s=contours_m_s, crs=crs, source=None if source is None else str(source))
 
 
 def pick_records(records: Sequence[PathLike], out: PathLike, layout: PathLike | None = None,
