@@ -10,7 +10,7 @@ def register(sub):
         "demo", help="run check, layers, invert, plot and report on the built-in demo line",
         description="Run the whole workflow (pick QC, layered interpretation, tomography from "
                     "the layered and from the gradient start, figures, report) on the invented "
-                    "hillside line in demo/, and say where the report is.",
+                    "hillside line shipped with tomo (its folder: tomo.demo_dir()), and say where the report is.",
     )
     p.add_argument("--out", default="tomo-demo", metavar="DIR",
                    help="folder for the outputs (default: ./tomo-demo, created if needed)")
