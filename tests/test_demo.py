@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+import os
+import stat
 from pathlib import Path
 
 import numpy as np
@@ -27,9 +29,24 @@ def _trough_centre(x, depth, baseline_excess_m=2.0):
 @pytest.fixture(scope="module")
 def demo_run(tmp_path_factory):
     out = tmp_path_factory.mktemp("demo")
-    status = main(["demo", "--out", str(out)])
+    # the usual umask of a user account: outputs must come out readable by others (0644)
+    old = os.umask(0o022)
+    try:
+        status = main(["demo", "--out", str(out)])
+    finally:
+        os.umask(old)
     assert status == 0
     return out
+
+
+def test_demo_outputs_are_readable_by_others(demo_run):
+    # umask 022 gives a new file 0666 & ~022 = 0644 (POSIX open(2)); a colleague on a
+    # shared project drive must be able to open every output, also those written
+    # through a temporary file and a rename
+    modes = {path.name: stat.S_IMODE(path.stat().st_mode) for path in demo_run.iterdir()}
+    assert len(modes) >= 20
+    wrong = {name: oct(mode) for name, mode in modes.items() if mode != 0o644}
+    assert not wrong, wrong
 
 
 def test_demo_writes_report_and_every_file(demo_run, capsys):

@@ -13,7 +13,8 @@ A session in a notebook::
 The command line calls only these functions (``tomo/cli``), so both use one set of
 defaults, each defined once: the model cell (half the station spacing,
 :func:`tomo.survey.meshspec.inversion_mesh_spec`), the pick sigma where a pick file has
-none (:class:`InversionSettings`), the smoothing of the layered start
+none (:data:`DEFAULT_SIGMA_MS`, for the QC, the layers and the inversion alike), the
+smoothing of the layered start
 (:data:`START_SMOOTHING_CELLS`). Progress goes to a callback or, without one, to the
 ``logging`` logger ``"tomo"``; nothing here prints. Figures and reports import
 matplotlib when they are asked for, not before.
@@ -28,6 +29,7 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal
 
+from .core.defaults import DEFAULT_SIGMA_MS
 from .core.errors import InputError, TomoError
 from .core.fileio import check_output_path, prepare_folder
 from .layered.branches import MAX_BRANCHES, check_branch_count
@@ -43,6 +45,7 @@ from .results.run import Run
 from .survey.geometry import station_spacing
 from .survey.meshspec import MeshSpec, inversion_mesh_spec, read_mesh_spec
 from .survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
+from .survey.units import DISTANCE_UNITS, TIME_UNITS
 from .tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
 from .tomography.inversion import invert as _invert
 from .tomography.mesh import Mesh, mesh_for_picks
@@ -54,7 +57,8 @@ if TYPE_CHECKING:  # imported for the type hints only: both load matplotlib
 
 __all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interpret_layers", "write_layers",
            "read_layers", "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
-           "QC_DEFAULTS", "LAYERS_DEFAULTS", "MAX_BRANCHES", "check_branch_count", "synthesize",
+           "QC_DEFAULTS", "LAYERS_DEFAULTS", "DEFAULT_SIGMA_MS", "TIME_UNITS", "DISTANCE_UNITS", "SURVEY_DEFAULTS",
+           "MAX_BRANCHES", "check_branch_count", "synthesize",
            "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels",
            "write_report", "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport",
            "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path",
@@ -78,6 +82,8 @@ def _defaults(function: Callable[..., object]) -> dict[str, Any]:
 QC_DEFAULTS = _defaults(check_line)
 #: Defaults of :func:`interpret_layers` (and ``tomo layers``).
 LAYERS_DEFAULTS = _defaults(interpret_line)
+#: Defaults of :func:`read_survey` (the units of the files; ``--time-unit``, ``--distance-unit``).
+SURVEY_DEFAULTS = _defaults(read_survey)
 
 PathLike = str | os.PathLike
 
@@ -220,13 +226,14 @@ def _check_start(start: str, layers: Any, branches: int | None, start_smoothing:
 
 
 def _start_model(survey: Survey, grid: Mesh, terrain: Any, start: str, layers: LayeredResult | None,
-                 branches: int | None, smoothing: float, notes: list[str]) -> tuple[Any, Any, str]:
+                 branches: int | None, smoothing: float, notes: list[str],
+                 sigma_ms: float | None = None) -> tuple[Any, Any, str]:
     """The starting velocity (m/s on the grid), the layered result it came from (a dict,
     or None) and the start used; appends what the user should know to ``notes``."""
     if start == "layered":
         try:
             velocity, layered = layered_start(survey.picks, grid, terrain, n_branches=branches,
-                                              smooth_cells=smoothing, result=layers)
+                                              smooth_cells=smoothing, result=layers, sigma_ms=sigma_ms)
             return velocity, layered, start
         except TomoError as exc:
             # a line the layered methods cannot read still gets a tomogram, from the
@@ -318,7 +325,8 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     terrain, ground_notes = survey.ground()
     notes += ground_notes
     grid, spec, mesh_file = _mesh(survey, terrain, mesh)
-    velocity, layered, start_used = _start_model(survey, grid, terrain, start, layers, branches, smoothing, notes)
+    velocity, layered, start_used = _start_model(survey, grid, terrain, start, layers, branches, smoothing, notes,
+                                                 opts.default_sigma_ms)
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
              "mesh_spec": spec.as_dict(), "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,

@@ -6,14 +6,15 @@ import contextlib
 import csv
 import math
 import os
+import stat
 import tempfile
 import tomllib
 from pathlib import Path
 
 from .errors import InputError
 
-__all__ = ["atomic_path", "atomic_open", "read_csv_rows", "parse_float", "read_toml", "check_output_path",
-           "prepare_folder"]
+__all__ = ["atomic_path", "atomic_open", "output_mode", "current_umask", "read_csv_rows", "parse_float", "read_toml",
+           "check_output_path", "prepare_folder"]
 
 
 @contextlib.contextmanager
@@ -33,11 +34,38 @@ def atomic_path(path):
     os.close(fd)
     try:
         yield Path(tmp)
+        # mkstemp makes the file owner-only (0600); an output is a normal file that a
+        # colleague on a shared drive opens, so it gets what open() would have given it
+        os.chmod(tmp, output_mode(path))
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
+
+
+def current_umask():
+    """The process's file-creation mask (e.g. 0o022), read without changing it where
+    the system allows (Linux ``/proc/self/status``), else set and restored at once."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as status:
+            for line in status:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def output_mode(path):
+    """Permission bits for an output written to ``path``: those of the file it replaces,
+    else those ``open()`` gives a new file (0o666 less the umask: 0o644 under umask 022)."""
+    try:
+        return stat.S_IMODE(os.stat(path).st_mode)
+    except OSError:
+        return 0o666 & ~current_umask()
 
 
 @contextlib.contextmanager
@@ -78,11 +106,32 @@ def read_csv_rows(path):
         fields = [f.strip() for f in next(csv.reader([line]))]
         if header is None:
             header = [f.lower() for f in fields]
+            _check_separator(header, path, lineno)
             continue
+        if len(fields) > len(header):
+            # a decimal comma splits one number into two fields and shifts every column after it
+            raise InputError(f"{len(fields)} fields where the header has {len(header)}: decimal commas "
+                             "(12,5 for 12.5) or a stray comma? tomo reads comma-separated values with decimal "
+                             "points", path=path, line=lineno)
         rows.append((lineno, fields))
     if header is None:
         raise InputError("no header row found", path=path)
     return header, rows
+
+
+#: Separators that spreadsheets use instead of the comma, named for messages.
+_OTHER_SEPARATORS = {";": "semicolons", "\t": "tabs", "|": "vertical bars"}
+
+
+def _check_separator(header, path, lineno):
+    """Name the separator of a header that is not comma-separated (one field holding another one)."""
+    if len(header) != 1:
+        return
+    for sep, name in _OTHER_SEPARATORS.items():
+        if sep in header[0]:
+            raise InputError(f"the columns are separated by {name} ({sep!r}), not commas (a spreadsheet saved "
+                             "with a decimal comma?): save it as comma-separated values with decimal points",
+                             path=path, line=lineno)
 
 
 def parse_float(text, path, line, field):
@@ -90,7 +139,12 @@ def parse_float(text, path, line, field):
     try:
         value = float(text)
     except ValueError:
-        raise InputError(f"expected a number, got {text!r}", path=path, line=line, field=field) from None
+        hint = ""
+        if "," in text:
+            with contextlib.suppress(ValueError):
+                float(text.replace(",", "."))
+                hint = f" (a decimal comma? write {text.replace(',', '.')})"
+        raise InputError(f"expected a number, got {text!r}{hint}", path=path, line=line, field=field) from None
     if not math.isfinite(value):
         raise InputError(f"expected a finite number, got {text!r}", path=path, line=line, field=field)
     return value

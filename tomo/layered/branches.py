@@ -37,6 +37,7 @@ import math
 
 import numpy as np
 
+from ..core.defaults import DEFAULT_SIGMA_MS
 from .codes import notice
 from .sidefit import Branch, SideFit, SideProblem
 from .splits import (
@@ -57,8 +58,6 @@ __all__ = ["Branch", "SideFit", "SideProblem", "fit_side", "fit_side_robust", "f
 
 #: Most branches fitted on one side (five layers is more than shallow refraction resolves).
 MAX_BRANCHES = 5
-#: Pick sigma assumed when the pick file gives none, ms (low end of usual 0.5-2 ms, common practice).
-DEFAULT_SIGMA_MS = 0.5
 #: A pick this many robust sigmas from its branch is an outlier (common practice).
 OUTLIER_SIGMA = 4.0
 #: BIC difference that counts as very strong evidence for more branches (Kass & Raftery 1995).

@@ -41,7 +41,7 @@ class LineInput:
     notices: list = None
 
 
-def read_line(picks_path, terrain_path=None, stations_path=None, crs=None):
+def read_line(picks_path, terrain_path=None, stations_path=None, crs=None, time_unit="ms", distance_unit="m"):
     """Read the pick file with its terrain or stations file.
 
     Parameters
@@ -53,6 +53,9 @@ def read_line(picks_path, terrain_path=None, stations_path=None, crs=None):
         Stations file (:mod:`tomo.survey.stations`).
     crs : int or str, optional
         EPSG code of the stations' easting and northing (needs ``stations_path``).
+    time_unit, distance_unit : str
+        Units of the pick file's times and of its and the terrain file's positions
+        (:mod:`tomo.survey.units`); a stations file is in the metres of its map system.
 
     Returns
     -------
@@ -68,8 +71,8 @@ def read_line(picks_path, terrain_path=None, stations_path=None, crs=None):
         if crs is not None:
             raise InputError("an EPSG code places surveyed stations on the map; give --stations STATIONS.csv too",
                              field="--crs")
-        terrain = read_terrain(terrain_path) if terrain_path else None
-        picks = read_picks(picks_path, terrain=terrain)
+        terrain = read_terrain(terrain_path, distance_unit) if terrain_path else None
+        picks = read_picks(picks_path, terrain=terrain, time_unit=time_unit, distance_unit=distance_unit)
         return LineInput(picks, terrain, None, list(picks.notices))
     if terrain_path is not None:
         raise InputError("the stations file gives the ground elevations; leave out --terrain", field="--terrain")
@@ -78,6 +81,7 @@ def read_line(picks_path, terrain_path=None, stations_path=None, crs=None):
     # Elevations interpolated in the picks' x equal those interpolated in distance along
     # the line: both are linear between the same stations.
     ground_in_x = Terrain(stations.x, stations.elevation, path=stations.path)
-    picks = stations.along_line(read_picks(picks_path, terrain=ground_in_x))
+    picks = stations.along_line(read_picks(picks_path, terrain=ground_in_x, time_unit=time_unit,
+                                           distance_unit=distance_unit))
     notices = list(stations.notices) + list(picks.notices)
     return LineInput(picks, stations.terrain(), stations, notices)

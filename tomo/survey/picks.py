@@ -7,12 +7,17 @@ column         required  meaning
 =============  ========  =====================================================
 source_x       yes       shot position along the line, m
 receiver_x     yes       geophone position along the line, m
-time_ms        yes*      first-arrival time, ms (*not in a layout file)
+time_ms        yes*      first-arrival time, ms (*not in a layout file; blank: no pick)
 source_z       no        shot elevation, m, up positive (default: on the ground)
 receiver_z     no        geophone elevation, m, up positive (default: on the ground)
 sigma_ms       no        pick uncertainty (one standard deviation), ms
 =============  ========  =====================================================
 
+A blank ``time_ms`` (an unpickable trace) leaves that pair out, with a notice that
+counts them and gives their lines. A file in other units (times in seconds; positions
+in feet or centimetres) is read when its units are declared (``time_unit``,
+``distance_unit``; ``--time-unit``, ``--distance-unit``), and refused when its numbers
+are not those of a refraction line in the units assumed (:mod:`tomo.survey.units`).
 Inside tomo everything is SI: metres and seconds. Milliseconds exist only in files.
 """
 
@@ -24,6 +29,7 @@ import numpy as np
 
 from ..core.errors import InputError
 from ..core.fileio import atomic_open, parse_float, read_csv_rows
+from .units import check_plausible, check_units, pick_scales
 
 __all__ = ["Picks", "read_picks", "write_picks", "check_picks"]
 
@@ -120,31 +126,40 @@ _REQUIRED = ("source_x", "receiver_x")
 _OPTIONAL = ("source_z", "receiver_z", "sigma_ms")
 
 
-def read_picks(path, terrain=None, layout=False):
+def read_picks(path, terrain=None, layout=False, time_unit="ms", distance_unit="m"):
     """Read a pick file (or a layout file, ``layout=True``, which has no ``time_ms``).
 
     Parameters
     ----------
     path : str or Path
     terrain : Terrain, optional
-        Ground elevation. Stations without elevations are put on it; stations outside its
-        range are an error. Without terrain, missing elevations are 0 (flat ground).
+        Ground elevation, m. Stations without elevations are put on it; stations outside
+        its range are an error. Without terrain, missing elevations are 0 (flat ground).
     layout : bool
         Read a layout: ``time_ms`` is not required (and ignored if present).
+    time_unit : {"ms", "s"}
+        Unit of the time and sigma columns as the file holds them (declared by the
+        user; the columns keep their names).
+    distance_unit : {"m", "ft", "cm"}
+        Unit of the positions and elevations in the file.
 
     Returns
     -------
     Picks
-        Times and uncertainties in s; ``notices`` lists what a user should know.
+        Times and uncertainties in s, positions in m; ``notices`` lists what a user
+        should know (blank times skipped, ignored columns, ...).
 
     Raises
     ------
     InputError
         One line naming file, line and field: a missing required column, a non-number, a
         time that is zero, negative or NaN, sigma <= 0, a geophone on its shot, the same
-        pair twice with different times, or a station outside the terrain.
+        pair twice with different times, a station outside the terrain, or times and
+        distances no refraction line gives in the declared units
+        (:mod:`tomo.survey.units`, which names the likely unit).
     """
     path = str(path)
+    time_factor, distance_factor = check_units(time_unit, distance_unit)
     header, rows = read_csv_rows(path)
     required = _REQUIRED if layout else _REQUIRED + ("time_ms",)
     for name in required:
@@ -159,20 +174,7 @@ def read_picks(path, terrain=None, layout=False):
     if layout and "time_ms" in header:
         notices.append(f"{path}: layout file has a time_ms column; it is ignored")
     columns = [c for c in header if c in known and not (layout and c == "time_ms")]
-    index = {c: header.index(c) for c in columns}
-    if not rows:
-        raise InputError("no picks in file", path=path)
-    data = {c: np.empty(len(rows)) for c in columns}
-    lines = np.empty(len(rows), dtype=int)
-    for k, (lineno, fields) in enumerate(rows):
-        if len(fields) < len(header):
-            raise InputError(f"expected {len(header)} fields, got {len(fields)}", path=path, line=lineno)
-        lines[k] = lineno
-        for c in columns:
-            text = fields[index[c]]
-            if text == "" and c in _OPTIONAL:
-                raise InputError("empty value", path=path, line=lineno, field=c)
-            data[c][k] = parse_float(text, path, lineno, c)
+    data, lines = _read_columns(path, header, rows, columns, layout, notices)
     if not layout:
         t = data["time_ms"]
         bad = np.flatnonzero(t <= 0)
@@ -185,28 +187,68 @@ def read_picks(path, terrain=None, layout=False):
         if bad.size:
             k = bad[0]
             raise InputError(f"sigma must be positive, got {s[k]:g} ms", path=path, line=lines[k], field="sigma_ms")
-
+    # before anything is computed from them: are these the numbers of a refraction line?
+    check_plausible(pick_scales(data["source_x"], data["receiver_x"], data.get("time_ms")), path,
+                    time_unit, distance_unit)
+    for c in ("source_x", "receiver_x", "source_z", "receiver_z"):
+        if c in data:
+            data[c] = data[c] * distance_factor
     sx, rx = data["source_x"], data["receiver_x"]
     if terrain is not None:
-        # report the first line in the file with a station off the terrain
-        outside = ~terrain.covers(sx) | ~terrain.covers(rx)
-        if np.any(outside):
-            k = int(np.flatnonzero(outside)[0])
-            role, x = ("source", sx[k]) if not terrain.covers(sx[k]) else ("receiver", rx[k])
-            raise InputError(
-                f"{role} at x = {x:g} m is outside the terrain{f' of {terrain.path}' if terrain.path else ''} "
-                f"({terrain.x[0]:g} to {terrain.x[-1]:g} m)",
-                path=path, line=lines[k], field=f"{role}_x",
-            )
+        _check_on_terrain(sx, rx, terrain, path, lines)
     sz = _place_on_ground(sx, data.get("source_z"), terrain, path, lines, "source", notices)
     rz = _place_on_ground(rx, data.get("receiver_z"), terrain, path, lines, "receiver", notices)
     picks = Picks(
         source_x=sx, source_z=sz, receiver_x=rx, receiver_z=rz,
-        time_s=None if layout else data["time_ms"] * 1e-3,
-        sigma_s=data["sigma_ms"] * 1e-3 if "sigma_ms" in data else None,
+        time_s=None if layout else data["time_ms"] * time_factor * 1e-3,
+        sigma_s=data["sigma_ms"] * time_factor * 1e-3 if "sigma_ms" in data else None,
         line=lines, path=path, notices=notices,
     )
     return check_picks(picks)
+
+
+def _read_columns(path, header, rows, columns, layout, notices):
+    """The numbers of ``columns`` per row, and each row's line; a blank time skips its row."""
+    index = {c: header.index(c) for c in columns}
+    keep, skipped = [], []
+    for lineno, fields in rows:
+        if len(fields) < len(header):
+            raise InputError(f"expected {len(header)} fields, got {len(fields)}", path=path, line=lineno)
+        if not layout and fields[index["time_ms"]] == "":
+            # an unpickable trace: its pick is left out, not the line
+            skipped.append(lineno)
+            continue
+        keep.append((lineno, fields))
+    if skipped:
+        shown = ", ".join(str(n) for n in skipped[:10]) + (", ..." if len(skipped) > 10 else "")
+        notices.append(f"{path}: {len(skipped)} pick(s) with a blank time_ms skipped (unpicked traces; "
+                       f"line(s) {shown})")
+    if not keep:
+        raise InputError("no picks in file" if not skipped else "every time_ms is blank: no picks in file",
+                         path=path)
+    data = {c: np.empty(len(keep)) for c in columns}
+    lines = np.empty(len(keep), dtype=int)
+    for k, (lineno, fields) in enumerate(keep):
+        lines[k] = lineno
+        for c in columns:
+            text = fields[index[c]]
+            if text == "" and c in _OPTIONAL:
+                raise InputError("empty value", path=path, line=lineno, field=c)
+            data[c][k] = parse_float(text, path, lineno, c)
+    return data, lines
+
+
+def _check_on_terrain(sx, rx, terrain, path, lines):
+    """Refuse the first line in the file with a station off the terrain."""
+    outside = ~terrain.covers(sx) | ~terrain.covers(rx)
+    if np.any(outside):
+        k = int(np.flatnonzero(outside)[0])
+        role, x = ("source", sx[k]) if not terrain.covers(sx[k]) else ("receiver", rx[k])
+        raise InputError(
+            f"{role} at x = {x:g} m is outside the terrain{f' of {terrain.path}' if terrain.path else ''} "
+            f"({terrain.x[0]:g} to {terrain.x[-1]:g} m)",
+            path=path, line=lines[k], field=f"{role}_x",
+        )
 
 
 def _place_on_ground(x, z, terrain, path, lines, role, notices):

@@ -18,6 +18,7 @@ from ..core.errors import InputError
 from .line import read_line
 from .picks import Picks, read_picks
 from .terrain import Terrain, read_terrain, terrain_from_stations
+from .units import check_units
 
 __all__ = ["Survey", "read_survey", "NO_TERRAIN_NOTE"]
 
@@ -77,7 +78,8 @@ class Survey:
 
 
 def read_survey(picks: str | os.PathLike | Picks, terrain: str | os.PathLike | Terrain | None = None,
-                stations: str | os.PathLike | None = None, crs: int | str | None = None) -> Survey:
+                stations: str | os.PathLike | None = None, crs: int | str | None = None, *,
+                time_unit: str = "ms", distance_unit: str = "m") -> Survey:
     """Read a pick file and, if given, a terrain or stations file into a :class:`Survey`.
 
     Parameters
@@ -93,6 +95,13 @@ def read_survey(picks: str | os.PathLike | Picks, terrain: str | os.PathLike | T
         the ground. Needs a pick file.
     crs : int or str, optional
         EPSG code of the stations' easting and northing (a projected system in m).
+    time_unit : {"ms", "s"}
+        Unit of the pick file's time and sigma columns (default ms).
+    distance_unit : {"m", "ft", "cm"}
+        Unit of the pick and terrain files' positions and elevations (default m).
+        Everything read is converted to s and m. Picks whose scales no refraction line
+        has in the declared units are refused, naming the likely unit
+        (:mod:`tomo.survey.units`).
 
     Returns
     -------
@@ -103,11 +112,13 @@ def read_survey(picks: str | os.PathLike | Picks, terrain: str | os.PathLike | T
     InputError
         One line naming the file, line and field of the first bad value.
     """
+    check_units(time_unit, distance_unit)
     if isinstance(picks, Picks) or isinstance(terrain, Terrain):
         if stations is not None or crs is not None:
             raise InputError("a stations file goes with a pick file and no terrain", field="stations")
-        ground = terrain if isinstance(terrain, Terrain) or terrain is None else read_terrain(terrain)
-        read = picks if isinstance(picks, Picks) else read_picks(picks, terrain=ground)
+        ground = terrain if isinstance(terrain, Terrain) or terrain is None else read_terrain(terrain, distance_unit)
+        read = picks if isinstance(picks, Picks) else read_picks(picks, terrain=ground, time_unit=time_unit,
+                                                                  distance_unit=distance_unit)
         return Survey(picks=read, terrain=ground, notices=list(read.notices))
-    line = read_line(picks, terrain, stations, crs)
+    line = read_line(picks, terrain, stations, crs, time_unit=time_unit, distance_unit=distance_unit)
     return Survey(picks=line.picks, terrain=line.terrain, stations=line.stations, notices=list(line.notices))

@@ -12,6 +12,7 @@ import numpy as np
 
 from ..core.errors import InputError
 from ..core.fileio import parse_float, read_csv_rows
+from .units import DISTANCE_UNITS
 
 __all__ = ["Terrain", "read_terrain", "flat_terrain", "terrain_from_stations"]
 
@@ -88,8 +89,8 @@ def flat_terrain(x_min, x_max, z=0.0):
     return Terrain(np.array([float(x_min), float(x_max)]), np.array([float(z), float(z)]))
 
 
-def read_terrain(path):
-    """Read a terrain CSV file with columns ``x,z`` (m).
+def read_terrain(path, distance_unit="m"):
+    """Read a terrain CSV file with columns ``x,z`` (m, or ``distance_unit``: "ft", "cm").
 
     Raises
     ------
@@ -117,7 +118,8 @@ def read_terrain(path):
         zs.append(z)
     if len(xs) < 2:
         raise InputError("terrain needs at least two points", path=path)
-    return Terrain(np.array(xs), np.array(zs), path=str(path))
+    factor = DISTANCE_UNITS[distance_unit]
+    return Terrain(np.array(xs) * factor, np.array(zs) * factor, path=str(path))
 
 
 def terrain_from_stations(picks):

@@ -44,6 +44,7 @@ from threadpoolctl import threadpool_limits
 
 from ..core.errors import InputError
 from ..core.version import __version__
+from ..survey.units import GROUND_VELOCITY_M_S
 from .passes import forward_pass, trace_pass
 from .regularisation import parameter_bounds, smoothness_operator, to_parameter, to_velocity
 from .run import RunData
@@ -184,6 +185,22 @@ def _check_inputs(picks, mesh, start_velocity, settings):
     return _velocity_bounds(mesh, start_velocity, settings)
 
 
+def _check_physical(v_ground, settings):
+    """Refuse a starting model whose median velocity lies outside that of near-surface
+    ground (:data:`tomo.survey.units.GROUND_VELOCITY_M_S`) unless the bounds set allow
+    it: such a start comes from picks in the wrong units, and its travel times can fit
+    them at once (chi-squared at target after 0 iterations) with a meaningless model.
+    The median, because a gradient start may pass the upper limit at the grid's bottom."""
+    lo, hi = GROUND_VELOCITY_M_S
+    allowed_lo = lo if settings.v_min_m_s is None else min(lo, settings.v_min_m_s)
+    allowed_hi = hi if settings.v_max_m_s is None else max(hi, settings.v_max_m_s)
+    median = float(np.median(v_ground))
+    if not allowed_lo <= median <= allowed_hi:
+        raise InputError(f"the starting model's median velocity is {median:,.0f} m/s, outside what near-surface "
+                         f"ground gives ({lo:g} to {hi:g} m/s): check the units of the picks (times in seconds? "
+                         "positions in feet?) or set v_min/v_max to allow it", field="start")
+
+
 def _velocity_bounds(mesh, start_velocity, settings):
     v = np.asarray(start_velocity, float)
     if v.shape != mesh.shape:
@@ -192,6 +209,7 @@ def _velocity_bounds(mesh, start_velocity, settings):
     if not np.all(np.isfinite(vg)) or np.any(vg <= 0):
         raise InputError("starting model has a non-finite or non-positive velocity in the ground")
     v_lo, v_hi = float(vg.min()), float(vg.max())
+    _check_physical(vg, settings)
     v_min = settings.v_min_m_s if settings.v_min_m_s is not None else min(150.0, 0.5 * v_lo)
     v_max = settings.v_max_m_s if settings.v_max_m_s is not None else max(7000.0, 2.0 * v_hi)
     if v_min >= v_max:

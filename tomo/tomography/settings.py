@@ -8,16 +8,13 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass, fields
 
+from ..core.defaults import DEFAULT_SIGMA_MS
 from ..core.errors import InputError
 from .forward import DEFAULT_SOURCE_RADIUS
 from .rays import BOOKINGS, DEFAULT_BOOKING, DEFAULT_STEP
 
 __all__ = ["InversionSettings", "DEFAULT_SIGMA_MS"]
 
-#: Pick uncertainty (one standard deviation, ms) where the pick file gives none. Pick
-#: errors of 0.5-2 ms are usual (common practice); 1 ms keeps an unknown noise level
-#: from being fitted as if it were structure.
-DEFAULT_SIGMA_MS = 1.0
 
 
 @dataclass(frozen=True)

@@ -83,8 +83,11 @@ def fit_gradient(picks):
         v0, k = np.exp(q)
         return (gradient_time(x, v0, k) - t) / sigma
 
-    fit = least_squares(residual, np.log([v0_guess, k_guess]), loss="soft_l1", f_scale=2.0,
-                        bounds=(np.log([10.0, 1e-4]), np.log([2e4, 1e4])))
+    lo, hi = np.log([10.0, 1e-4]), np.log([2e4, 1e4])
+    # picks in the wrong units put the guess outside the bounds: start inside them, the
+    # inversion then refuses the start by its velocities (tomo.tomography.inversion)
+    guess = np.clip(np.log([v0_guess, k_guess]), lo + 1e-6, hi - 1e-6)
+    fit = least_squares(residual, guess, loss="soft_l1", f_scale=2.0, bounds=(lo, hi))
     v0, k = (float(v) for v in np.exp(fit.x))
     rms = float(np.sqrt(np.mean((gradient_time(x, v0, k) - t) ** 2)) * 1e3)
     xmax = float(x.max())
@@ -150,7 +153,8 @@ def smooth_start(velocity, mesh, sigma_cells):
     return np.where(ground, np.exp(num / np.maximum(den, 1e-12)), np.nan)
 
 
-def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYERED_SMOOTHING_CELLS, result=None):
+def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYERED_SMOOTHING_CELLS, result=None,
+                  sigma_ms=None):
     """Starting model from the layered interpretation, m/s on the mesh (NaN in air).
 
     Calls ``tomo.layered.interpret_line(picks, terrain, n_branches=n_branches)``
@@ -160,11 +164,13 @@ def layered_start(picks, mesh, terrain=None, n_branches=None, smooth_cells=LAYER
     velocity array and the interpretation as a dict (stored in the run file).
     ``n_branches`` fixes the number of travel-time branches on every side (default:
     chosen by the BIC, which reads the curved branches of a strongly undulating
-    refractor as extra layers).
+    refractor as extra layers). ``sigma_ms`` is the pick sigma where the picks give none
+    (ms; default that of the layered stage), the inversion's own.
     """
     check_smoothing(smooth_cells)
     if result is None:
-        result = interpret_line(picks, terrain=terrain, n_branches=n_branches)
+        sigma = {} if sigma_ms is None else {"sigma_ms": sigma_ms}
+        result = interpret_line(picks, terrain=terrain, n_branches=n_branches, **sigma)
     v = np.asarray(paint_layers(result, mesh), float)
     v = np.where(mesh.ground, v, np.nan)
     if not np.all(np.isfinite(v[mesh.ground])) or np.any(v[mesh.ground] <= 0):
