@@ -202,3 +202,4 @@ def test_public_names_resolve():
 
     missing = [name for name in tomo.__all__ if not hasattr(tomo, name)]
     assert not missing, f"tomo.__all__ names that do not resolve: {missing}"
+    assert set(tomo._LAZY) <= set(tomo.__all__), "a lazily exported name is missing from tomo.__all__"

@@ -25,10 +25,42 @@ light: it loads neither matplotlib nor h5py until a figure or a run file is aske
 from __future__ import annotations
 
 import importlib
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .core.errors import InputError, SolverError, TomoError
 from .core.version import __version__
+
+if TYPE_CHECKING:  # type checkers and editors see the lazy names as what they are
+    from .analysis.surface import Surface
+    from .api import (
+        InversionSettings,
+        LayeredResult,
+        Run,
+        Survey,
+        add_boreholes,
+        check_survey,
+        compare_runs,
+        default_settings,
+        demo_dir,
+        export,
+        interpret_layers,
+        invert,
+        pick_records,
+        plot_run,
+        read_layers,
+        read_run,
+        read_survey,
+        synthesize,
+        write_grid,
+        write_layers,
+        write_profile,
+        write_report,
+        write_surface,
+    )
+    from .figures.compare import layered_vs_gridded
+    from .figures.fit import misfit_history, residual_figure, traveltime_fit
+    from .figures.section import coverage_section, velocity_section
+    from .figures.versus import versus_figure
 
 #: Public name -> module that defines it (imported when the name is first used).
 _LAZY = {
@@ -47,7 +79,15 @@ _LAZY = {
     "versus_figure": "tomo.figures.versus",
 }
 
-__all__ = ["__version__", "TomoError", "InputError", "SolverError", *_LAZY]
+__all__ = [
+    "__version__", "TomoError", "InputError", "SolverError",
+    "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile", "invert",
+    "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface", "export",
+    "add_boreholes", "pick_records", "synthesize", "default_settings", "demo_dir",
+    "Survey", "Run", "LayeredResult", "InversionSettings", "Surface",
+    "velocity_section", "coverage_section", "traveltime_fit", "residual_figure", "misfit_history",
+    "layered_vs_gridded", "versus_figure",
+]
 
 
 def __getattr__(name: str) -> Any:

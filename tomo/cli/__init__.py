@@ -1,9 +1,11 @@
-"""The ``tomo`` command line: parses arguments and calls the library.
+"""The ``tomo`` command line: parses arguments and calls the library's API.
 
 Each subcommand lives in its own module of this package with two functions:
-``register(subparsers)`` adds its parser and ``run(args)`` does the work and returns
-the exit status. Errors a user can cause (:class:`tomo.TomoError`) become one line on
-stderr and exit status 2; Ctrl-C gives status 130.
+``register(subparsers)`` adds its parser and ``run(args)`` calls :mod:`tomo.api`, prints
+what it did and returns the exit status (the package imports nothing else of tomo but
+:mod:`tomo.core`; ``tests/test_architecture.py`` checks it). Errors a user can cause
+(:class:`tomo.TomoError`) become one line on stderr and exit status 2; Ctrl-C gives
+status 130.
 """
 
 from __future__ import annotations
