@@ -60,6 +60,27 @@ def test_demo_writes_report_and_every_file(demo_run, capsys):
     assert 'id="fig-versus"' in text and "Against a second run of these picks (Figure" in text
 
 
+def test_demo_warnings_are_few_and_numbered_like_the_tables(demo_run):
+    # a clean line gives a handful of warnings, so that each one is read (issue 15);
+    # the QC counts its own (check.txt), the layered interpretation prints its count
+    check = (demo_run / "check.txt").read_text(encoding="utf-8").splitlines()
+    layers = (demo_run / "layers.txt").read_text(encoding="utf-8").splitlines()
+    qc = 0 if check[-1] == "no warnings" else int(check[-1].split()[0])
+    counted = [line for line in layers if "warning(s) to act on" in line]
+    assert len(counted) == 1
+    layered = int(counted[0].split()[0])
+    assert layered == sum(line.startswith("warning W") for line in layers)
+    assert qc + layered <= 5, (qc, layered)
+    # every layer a notice names exists in the table (layers counted from 1 at the top)
+    result = json.loads((demo_run / "layers.json").read_text(encoding="utf-8"))
+    n_layers = len(result["layers"])
+    for record in result["notices"]["warnings"]:
+        assert record["layer"] is None or 1 <= record["layer"] <= n_layers, record
+        for word, number in zip(record["message"].split()[:-1], record["message"].split()[1:]):
+            if word == "layer" and number.strip(":,").isdigit():
+                assert int(number.strip(":,")) <= n_layers, record["message"]
+
+
 def test_demo_recovers_the_weathered_zone(demo_run):
     # Truth: the base of the weathered rock in demo/site.toml (layer 2), under the spread
     # away from its ends. The recovered bedrock surface is the iso-velocity contour at

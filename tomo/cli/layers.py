@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 
+from ..core.notices import notice_lines
 from . import note
 from .line_options import add_line_options, read_survey_args
 
@@ -174,8 +175,9 @@ def run(args):
         line = result.refractor(j)
         print(f"refractor {j} (delay times): {line.x.size} geophones from {line.x.min():g} to {line.x.max():g} m, "
               f"depth {line.depth_m.min():.2f} to {line.depth_m.max():.2f} m")
-    for w in result.warnings:
-        print(f"warning: {w.message}")
+    # every notice, grouped: warnings to act on first and numbered, then the notes
+    for line in notice_lines(result.warnings):
+        print(line)
     for c in result.cautions:
         print(f"caution: {c}")
     for line in written:

@@ -7,9 +7,9 @@ without breaking anything that reads the records.
 
 from __future__ import annotations
 
-from ..core.notices import Notice
+from ..core.notices import NOTE, WARNING, Notice
 
-__all__ = ["HINTS", "notice"]
+__all__ = ["HINTS", "TOPICS", "NOTE_CODES", "notice"]
 
 _FIX_COUNT = "fix the branch count (--branches or --side-branches) and compare"
 _MORE_SHOTS = "add shots so that each refractor is recorded from both directions"
@@ -51,6 +51,46 @@ HINTS = {
 }
 
 
+#: The kind of each code in a few words: the heading of a group of repeats.
+TOPICS = {
+    "side-too-few-picks": "shot sides with too few picks",
+    "side-times-decrease": "shot sides whose times decrease with offset",
+    "side-no-increasing-fit": "shot sides with no fit of increasing velocity",
+    "breaks-too-close": "break offsets too close together",
+    "branch-count-reduced": "shot sides fitted with fewer branches than asked",
+    "branch-few-picks": "branches resting on only 2 picks",
+    "outliers-left-out": "outlier picks left out of the branch fits",
+    "times-bend-wrong-way": "shot sides whose times bend the wrong way",
+    "shot-one-sided": "end or off-end shots (one side only)",
+    "break-fixed-in-place": "branch breaks fixed in place (one refractor that changes along the line)",
+    "branches-parallel": "parallel branches taken as one refractor",
+    "branch-bent-by-relief": "branches bent by the refractor's relief",
+    "branch-unmatched": "branches that match no layer of the line",
+    "apparent-velocities-differ": "forward and reverse apparent velocities differ",
+    "branches-not-parallel": "branches shooting one way are not parallel",
+    "layer-no-common-coverage": "layers with no common coverage",
+    "layer-not-reversed": "layers not reversed",
+    "velocity-not-increasing": "velocities not increasing with depth",
+    "thickness-missing": "thicknesses not found",
+    "thickness-not-positive": "thicknesses not positive",
+    "hidden-layer-limit": "thickest layer that could hide",
+    "one-layer-only": "one layer only",
+    "minus-time-velocity-used": "refractor velocity from the minus times",
+    "minus-time-velocity-rejected": "minus-time velocity not used",
+    "refractor-not-profiled": "refractors without a delay-time profile",
+}
+
+#: Codes that are information, not something to act on: what the methods found and how
+#: they dealt with it. A refractor that dips or changes along the line is what the
+#: delay-time methods and the tomography are for; the hidden-layer size is a limit of
+#: every refraction line (stated for the line's numbers); the rest say which of two
+#: estimates was used. The remaining codes are warnings: picks, shots or settings to check.
+NOTE_CODES = frozenset({
+    "shot-one-sided", "branch-few-picks", "break-fixed-in-place", "branches-parallel", "branch-bent-by-relief",
+    "apparent-velocities-differ", "branches-not-parallel", "hidden-layer-limit", "minus-time-velocity-used",
+})
+
+
 def notice(code, message, layer=None, branch=None, fit=None, shot_x=None, side=None):
     """A :class:`Notice` of the layered stage with the hint of its ``code``.
 
@@ -61,4 +101,5 @@ def notice(code, message, layer=None, branch=None, fit=None, shot_x=None, side=N
         raise KeyError(f"unknown notice code {code!r}")
     if fit is not None:
         shot_x, side = float(fit.shot_x), fit.side_name
-    return Notice(code, message, layer=layer, branch=branch, shot_x=shot_x, side=side, hint=HINTS[code])
+    return Notice(code, message, layer=layer, branch=branch, shot_x=shot_x, side=side, hint=HINTS[code],
+                  level=NOTE if code in NOTE_CODES else WARNING, topic=TOPICS.get(code, ""))

@@ -190,16 +190,16 @@ def _merge_notice(k, template, fixed_place, ratio, positions, pos_spread, off_sp
         where = "; ".join(f"x = {np.median(positions[s]):.0f} m for shots {'left' if s > 0 else 'right'} of it"
                           for s in sorted(positions, reverse=True) if positions[s])
         return notice("break-fixed-in-place",
-                      f"the break between layer {k} ({template[k - 1]:.0f} m/s) and layer {k + 1} "
-                      f"({template[k]:.0f} m/s) stays at one place along the line ({where}; spread {pos_spread:.1f} m) "
-                      f"while its offset varies ({off_spread:.1f} m): a change along the refractor (step, trough, "
-                      f"dip) or a lateral velocity change, not a deeper layer; the two are taken as one refractor",
-                      layer=k)
+                      f"the branches at {template[k - 1]:.0f} and {template[k]:.0f} m/s break at one place along the "
+                      f"line ({where}; spread {pos_spread:.1f} m) while the break's offset varies "
+                      f"({off_spread:.1f} m): a change along the refractor (step, trough, dip) or a lateral velocity "
+                      f"change, not a deeper layer; both are taken as head waves from one refractor, the top of "
+                      f"layer {k}", layer=k)
     return notice("branches-parallel",
-                  f"at the same geophones, the layer {k + 1} ({template[k]:.0f} m/s) branches of farther shots run "
-                  f"parallel to the layer {k} ({template[k - 1]:.0f} m/s) branches of nearer shots (their difference "
-                  f"changes at {ratio:.0%} of the rate two distinct layers would give): head waves from one refractor "
-                  f"whose depth or dip changes, not a deeper layer; the two are taken as one refractor", layer=k)
+                  f"at the same geophones, the {template[k]:.0f} m/s branches of farther shots run parallel to the "
+                  f"{template[k - 1]:.0f} m/s branches of nearer shots (their difference changes at {ratio:.0%} of "
+                  f"the rate two distinct layers would give): head waves from one refractor whose depth or dip "
+                  f"changes, not a deeper layer; both are taken as the top of layer {k}", layer=k)
 
 
 def merge_lateral_breaks(fits, layer_of_branch, template, spacing):

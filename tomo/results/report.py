@@ -23,9 +23,6 @@ from ..layered.result import layered_result
 
 __all__ = ["CAUTIONS", "LAYERED_START_NOTE", "pick_qc", "build_report", "write_report"]
 
-#: Most layered-interpretation warnings listed in full (the rest are counted).
-MAX_WARNINGS = 12
-
 #: Shown in every report; people act on these numbers.
 CAUTIONS = (
     ("Non-uniqueness",
@@ -78,6 +75,8 @@ figure img { width: 100%; height: auto; border: 1px solid #dde; }
 figcaption { font-size: 0.88em; color: #333; margin-top: 0.3em; }
 .note { color: #555; font-style: italic; }
 code { font-size: 0.92em; }
+ol.notices { list-style: none; padding-left: 0.5em; }
+ol.notices > li { margin-bottom: 0.4em; }
 @media print { body { max-width: none; margin: 0; font-size: 11pt; } h2 { page-break-after: avoid; } }
 """
 
@@ -204,16 +203,35 @@ def _qc_section(run):
         if out.size > 20:
             parts.append(f'<p class="note">(largest 20 of {out.size} shown)</p>')
     layered = layered_result(run.layered)
-    warnings = [] if layered is None else layered.warnings
-    if warnings:
-        shown = warnings[:MAX_WARNINGS]
-        more = len(warnings) - len(shown)
-        parts.append(f"<h3>Warnings from the layered interpretation ({len(warnings)})</h3><ul>"
-                     + "".join(f"<li>{_esc(w.message)}</li>" for w in shown)
-                     + (f"<li><i>... and {more} more: see the output of <code>tomo layers</code> or its "
-                        "layers.json.</i></li>" if more > 0 else "")
-                     + "</ul>")
+    if layered is not None and layered.warnings:
+        parts.append(_notices_html(layered.warnings))
     return "\n".join(parts)
+
+
+def _notices_html(notices):
+    """Every notice of the layered interpretation, grouped: the warnings numbered W1, W2, ...
+    with what to do, then the notes N1, N2, ...; nothing is cut."""
+    from ..core.notices import WARNING, group_notices
+
+    groups = group_notices(notices)
+    out = []
+    for level, title, tag, intro in (
+            (WARNING, "Warnings from the layered interpretation", "W",
+             "Each asks for a check of the picks, the shots or the settings."),
+            ("note", "Notes from the layered interpretation", "N",
+             "What the methods found in these picks and how they dealt with it; nothing to fix.")):
+        chosen = [g for g in groups if g.level == level]
+        if not chosen:
+            if level == WARNING:
+                out.append("<h3>Warnings from the layered interpretation (none)</h3>")
+            continue
+        out.append(f"<h3>{title} ({len(chosen)})</h3><p>{intro}</p><ol class=\"notices\">")
+        for k, g in enumerate(chosen, start=1):
+            members = "".join(f"<li>{_esc(m)}</li>" for m in g.members())
+            out.append(f"<li><b>{tag}{k}.</b> {_esc(g.heading())}" + (f"<ul>{members}</ul>" if members else "")
+                       + (f"<br><i>What to do:</i> {_esc(g.hint)}" if g.hint else "") + "</li>")
+        out.append("</ol>")
+    return "\n".join(out)
 
 
 def _settings_section(run):
