@@ -14,9 +14,10 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 from ..core.errors import InputError
+from ..layered.result import layered_result
 from .coverage import ground_elevation, investigation_elevation
 
-__all__ = ["Surface", "check_contour", "contour_surface"]
+__all__ = ["Surface", "check_contour", "contour_surface", "layer_velocities", "refractor_contour"]
 
 
 @dataclass(frozen=True)
@@ -123,3 +124,21 @@ def contour_surface(run, velocity_m_s: float) -> Surface:
         constrained = np.isfinite(elevation) & (elevation >= doi)
     return Surface(velocity_m_s=value, x=np.asarray(run.x, float), ground_z=ground_z,
                    depth_m=ground_z - elevation, elevation_m=elevation, constrained=constrained)
+
+
+def layer_velocities(layered):
+    """Layer velocities (m/s) top to bottom of a layered result (or its dict, layers.json)."""
+    result = layered_result(layered)
+    return [] if result is None else [float(v) for v in result.velocities]
+
+
+def refractor_contour(layered, refractor=None):
+    """The iso-velocity (m/s) that stands for a refractor in the tomogram: the mean of
+    the layer velocities above and below it (common practice). ``refractor`` counts
+    from 1 (the base of the top layer); the deepest one by default."""
+    v = layer_velocities(layered)
+    if len(v) < 2:
+        return None
+    k = len(v) - 1 if refractor is None else int(refractor)
+    k = min(max(k, 1), len(v) - 1)
+    return 0.5 * (v[k - 1] + v[k])

@@ -25,7 +25,7 @@ import numpy as np
 from matplotlib import patheffects
 
 from ..analysis.coverage import covered
-from ..analysis.surface import contour_surface
+from ..analysis.surface import contour_surface, layer_velocities, refractor_contour
 from ..layered.result import layered_result
 from . import style
 from .section import _edges, colorbar, colour_range, display_cells, draw_base
@@ -34,12 +34,6 @@ __all__ = ["refractor_profiles", "layer_velocities", "refractor_contour", "layer
            "compare_table", "compare_tables"]
 
 _HALO = [patheffects.withStroke(linewidth=3.2, foreground="white")]
-
-
-def layer_velocities(layered):
-    """Layer velocities (m/s) top to bottom of a layered result (or its dict, layers.json)."""
-    result = layered_result(layered)
-    return [] if result is None else [float(v) for v in result.velocities]
 
 
 def refractor_profiles(layered, sigma_t_ms=None):
@@ -80,18 +74,6 @@ def refractor_profiles(layered, sigma_t_ms=None):
         profiles[k] = {"x": line.x[keep], "surface_z": line.surface_z[keep], "depth_m": line.depth_m[keep],
                        "elevation_m": elevation[keep], "sigma_m": sigma[keep]}
     return profiles
-
-
-def refractor_contour(layered, refractor=None):
-    """The iso-velocity (m/s) that stands for a refractor in the tomogram: the mean of
-    the layer velocities above and below it (common practice). ``refractor`` counts
-    from 1 (the base of the top layer); the deepest one by default."""
-    v = layer_velocities(layered)
-    if len(v) < 2:
-        return None
-    k = len(v) - 1 if refractor is None else int(refractor)
-    k = min(max(k, 1), len(v) - 1)
-    return 0.5 * (v[k - 1] + v[k])
 
 
 def compare_tables(run, min_points=3):

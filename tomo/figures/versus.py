@@ -17,10 +17,10 @@ from pathlib import Path
 import numpy as np
 
 from ..analysis.coverage import covered
-from ..analysis.surface import check_contour, contour_surface
+from ..analysis.surface import check_contour, contour_surface, refractor_contour
 from ..core.errors import InputError
 from . import style
-from .compare import _HALO, refractor_contour, stack_under
+from .compare import _HALO, stack_under
 from .section import _edges, colorbar, colour_range, display_cells, draw_base
 
 __all__ = ["versus_table", "versus_figure", "versus_summary", "run_labels", "CAPTION", "LABELS"]

@@ -4,7 +4,7 @@ iso-velocity surface and the layered delay-time refractor at the borehole.
 Which interface a borehole logged decides what it is compared with: interface k (the
 top of layer k + 1) against refractor k of the layered result and, in the tomogram,
 against the contour at the mean of the layer velocities above and below it (common
-practice; :func:`tomo.figures.compare.refractor_contour`). The default is the top of the
+practice; :func:`tomo.analysis.surface.refractor_contour`). The default is the top of the
 fastest layer. A chosen contour velocity replaces those contours for every borehole.
 """
 
@@ -15,8 +15,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..analysis.coverage import ground_elevation
-from ..analysis.surface import contour_surface
-from ..figures.compare import layer_velocities, refractor_contour, refractor_profiles
+from ..analysis.surface import contour_surface, layer_velocities, refractor_contour
+from ..figures.compare import refractor_profiles
 from ..survey.boreholes import DEEPEST
 
 __all__ = ["BoreholeTie", "borehole_ties"]

@@ -74,6 +74,23 @@ class Run(RunData):
         """
         return contour_surface(self, velocity_m_s)
 
+    def band(self, velocity_m_s: float):
+        """The depth band of the ``velocity_m_s`` surface across the members of an
+        ensemble (:func:`tomo.uncertainty.bands.surface_band`): median depth and the 5-95 %
+        range per column, m.
+
+        Raises
+        ------
+        InputError
+            If the run is not an ensemble's, or the velocity is outside the model's range.
+        """
+        from ..core.errors import InputError
+        from ..uncertainty.bands import surface_band
+
+        if self.ensemble is None:
+            raise InputError("a depth band needs an ensemble (tomo ensemble); this run is a single inversion")
+        return surface_band(self, velocity_m_s)
+
     def to_xarray(self) -> xarray.Dataset:
         """The velocity grid as an :class:`xarray.Dataset` following the CF conventions.
 

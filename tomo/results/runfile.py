@@ -18,6 +18,8 @@ Layout (all lengths m, velocities m/s, times ms as named)::
                               attrs chi2, rms_ms, lambda
     /stations, /boreholes     optional: the line on the map and its boreholes
                               (:mod:`tomo.results.runfile_map`)
+    /ensemble                 optional: every member of an ensemble whose central run
+                              this is (:mod:`tomo.results.runfile_ensemble`)
 
 The file is always written whole to a temporary name and renamed, so an interrupted
 run leaves the previous complete file (the last finished iteration), never a torn one.
@@ -35,6 +37,7 @@ from ..core.errors import InputError
 from ..core.fileio import atomic_path
 from ..core.version import __version__
 from ..tomography.run import RunData
+from .runfile_ensemble import read_ensemble_group, write_ensemble_group
 from .runfile_map import read_map_groups, write_map_groups
 
 __all__ = ["write_run", "read_run", "RunWriter", "FORMAT", "FORMAT_VERSION"]
@@ -84,6 +87,7 @@ def write_run(path, run):
             for name in _HISTORY_FIELDS:
                 g[name] = np.asarray(run.history.get(name, []), float)
             write_map_groups(f, run)
+            write_ensemble_group(f, run)
             g = f.create_group("iterations")
             for k, model in enumerate(run.iteration_models, start=1):
                 d = g.create_dataset(f"{k:03d}/velocity", data=np.asarray(model, float), **_GZIP)
@@ -154,7 +158,7 @@ def read_run(path, cls=RunData):
                 layered=json.loads(layered) if layered is not None else None,
                 notes=json.loads(f.attrs.get("notes", "[]")),
                 tomo_version=str(f.attrs["tomo_version"]), created=str(f.attrs["created"]),
-                **read_map_groups(f),
+                **read_map_groups(f), **read_ensemble_group(f),
             )
         except (KeyError, OSError, ValueError) as exc:
             raise InputError(f"run file is incomplete or damaged ({exc})", path=path) from None

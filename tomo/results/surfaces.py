@@ -14,9 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..analysis.surface import check_contour, contour_surface
+from ..analysis.surface import check_contour, contour_surface, refractor_contour
 from ..core.errors import InputError
-from ..figures.compare import refractor_contour, refractor_profiles
+from ..figures.compare import refractor_profiles
 
 __all__ = ["SectionSurface", "export_contours", "section_surfaces"]
 

@@ -49,6 +49,9 @@ class RunData:
         The line in map coordinates (surveyed stations and their EPSG system), if given.
     boreholes : tomo.survey.boreholes.Boreholes or None
         Boreholes placed on the line (``x`` in distance along it), if given.
+    ensemble : tomo.uncertainty.record.EnsembleRecord or None
+        When the run is the central member of an ensemble: every member's model and
+        fit, and what the members say together (``tomo ensemble``).
     """
 
     x: np.ndarray
@@ -74,6 +77,7 @@ class RunData:
     created: str = ""
     stations: object = None
     boreholes: object = None
+    ensemble: object = None
 
     @property
     def residual_ms(self):

@@ -37,7 +37,7 @@ from ..layered.interpret import interpret_line
 from ..layered.result import interface_depths
 
 __all__ = ["fit_gradient", "gradient_start", "layered_start", "paint_layers", "smooth_start", "check_smoothing",
-           "gradient_time", "LAYERED_SMOOTHING_CELLS"]
+           "gradient_time", "LAYERED_SMOOTHING_CELLS", "paint_layer_table"]
 
 #: Standard deviation (model cells) of the Gaussian that smooths the layered start: two
 #: cells are about one station spacing on the default mesh (cells of half the spacing).
@@ -192,11 +192,18 @@ def paint_layers(result, mesh):
         Velocity, m/s; NaN in the air.
     """
     v = result.velocities
+    tops = interface_depths(result, mesh.x) if v.size > 1 else np.zeros((0, mesh.nx))
+    return paint_layer_table(v, tops, mesh)
+
+
+def paint_layer_table(velocities_m_s, tops_m, mesh):
+    """A velocity grid (m/s) on ``mesh`` from layer velocities (m/s, top to bottom) and
+    the depths of the layer tops 2..n below the ground at every column (m, shape
+    (n - 1, mesh.nx)); NaN in the air."""
+    v = np.asarray(velocities_m_s, float)
     depth = mesh.depth
     out = np.full(mesh.shape, v[0])
-    if v.size > 1:
-        tops = interface_depths(result, mesh.x)  # (n-1, nx)
-        for k in range(1, v.size):
-            out = np.where(depth >= tops[k - 1][None, :], v[k], out)
+    for k in range(1, v.size):
+        out = np.where(depth >= np.asarray(tops_m)[k - 1][None, :], v[k], out)
     out[~mesh.ground] = np.nan
     return out

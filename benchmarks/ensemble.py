@@ -1,0 +1,105 @@
+"""Is the ensemble's depth band honest? Calibration on synthetic lines with known rock.
+
+Three lines, forward-modelled on a grid four times finer than the inversion's, with
+0.5 ms of Gaussian noise (``benchmarks/starts.py`` for the first two):
+
+- ``channel``: a narrow buried channel (15 m wide at its base, 8 m deeper than the 9 m
+  of cover around it) under a graded overburden, on gently sloping ground;
+- ``trough``: a broad trough under 6-11 m of graded overburden;
+- ``weathered``: a weathered zone thickening from 5 to 11 m along the line.
+
+Each is run as an ensemble (``tomo.api.ensemble``, default settings) and the band of
+the rock surface (the iso-velocity surface at the geometric mean of the overburden
+velocity just above the rock and the rock's) is held against the true rock. Printed
+per line: the share of the constrained columns under the spread whose true depth lies
+inside the band, the median and largest band width (m, and the median as a share of the
+true depth), whether the band reaches the true depth at the deepest point of the rock,
+the wall time and the members kept.
+
+Goals (issue 11): the band holds the truth in at least 80 % of the constrained columns
+of every line, with a median width at most 25 % of the depth; at the channel axis the
+band reaches the true depth.
+
+Run: ``python benchmarks/ensemble.py [channel trough weathered] [--members 32] [--workers 2]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from starts import GEOPHONES, LINES, make_line  # noqa: E402
+
+import tomo  # noqa: E402
+from tomo.survey.model import Layer, Model  # noqa: E402
+from tomo.survey.survey import read_survey  # noqa: E402
+from tomo.survey.terrain import Terrain  # noqa: E402
+
+
+def _weathered():
+    x = np.array([-40.0, 0.0, 117.5, 160.0])
+    d = np.array([5.0, 5.0, 11.0, 11.0])
+    terrain = Terrain(np.array([-40.0, 160.0]), np.array([30.0, 33.0]))
+    layers = (Layer(350.0, 25.0, np.column_stack([x, d])), Layer(2200.0, 10.0))
+    v_above = 350.0 + 25.0 * 8.0
+    return Model(layers, terrain=terrain), np.sqrt(v_above * 2200.0)
+
+
+LINES["weathered"] = _weathered
+
+
+def calibrate(name, members, workers, seed=1):
+    model, contour, picks, _ = make_line(name, seed)
+    survey = read_survey(picks, terrain=model.terrain)
+    t0 = time.perf_counter()
+    run = tomo.api.ensemble(survey, members=members, workers=workers, seed=seed)
+    wall = time.perf_counter() - t0
+    band = run.band(contour)
+    x = band.x
+    under = (x >= GEOPHONES[0]) & (x <= GEOPHONES[-1]) & band.constrained
+    true = model.layers[0].base_depth(x)
+    inside = (band.depth_low_m <= true) & (true <= band.depth_high_m)
+    width = band.width_m
+    axis = int(np.argmax(np.where(under, true, -np.inf)))
+    return {"line": name, "coverage": float(np.mean(inside[under])), "columns": int(under.sum()),
+            "median_width": float(np.median(width[under])),
+            "median_share": float(np.median(width[under] / true[under])),
+            "largest_width": float(np.max(width[under])),
+            "axis_reached": bool(band.depth_high_m[axis] >= true[axis]),
+            "axis": (float(x[axis]), float(true[axis]), float(band.depth_low_m[axis]), float(band.depth_high_m[axis])),
+            "kept": run.ensemble.n_kept, "members": members, "wall_s": wall,
+            "mean_error": float(np.mean(np.abs(band.depth_m[under] - true[under])))}
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("lines", nargs="*", default=["channel", "trough", "weathered"])
+    parser.add_argument("--members", type=int, default=32)
+    parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--seed", type=int, default=1)
+    args = parser.parse_args(argv)
+    rows = []
+    for name in args.lines:
+        row = calibrate(name, args.members, args.workers, args.seed)
+        rows.append(row)
+        print(f"  {name}: {row}", file=sys.stderr)
+    print(f"\n{'line':>10} {'in band':>8} {'cols':>5} {'median width':>13} {'of depth':>8} {'largest':>8} "
+          f"{'axis reached':>12} {'kept':>9} {'wall s':>7}")
+    for r in rows:
+        print(f"{r['line']:>10} {r['coverage']:>8.0%} {r['columns']:>5} {r['median_width']:>11.2f} m "
+              f"{r['median_share']:>8.0%} {r['largest_width']:>6.2f} m {str(r['axis_reached']):>12} "
+              f"{r['kept']:>4}/{r['members']:<4} {r['wall_s']:>7.0f}")
+    for r in rows:
+        x, t, lo, hi = r["axis"]
+        print(f"{r['line']}: deepest rock at x = {x:.1f} m, {t:.1f} m deep; band there {lo:.1f}-{hi:.1f} m; "
+              f"median surface {r['mean_error']:.2f} m from the truth on average")
+
+
+if __name__ == "__main__":
+    main()
