@@ -36,7 +36,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from starts import GEOPHONES, LINES, make_line  # noqa: E402
 
-import tomo  # noqa: E402
+from tomo.api import ensemble  # noqa: E402
 from tomo.survey.model import Layer, Model  # noqa: E402
 from tomo.survey.survey import read_survey  # noqa: E402
 from tomo.survey.terrain import Terrain  # noqa: E402
@@ -54,12 +54,19 @@ def _weathered():
 LINES["weathered"] = _weathered
 
 
-def calibrate(name, members, workers, seed=1):
+def calibrate(name, members, workers, seed=1, keep=None):
     model, contour, picks, _ = make_line(name, seed)
     survey = read_survey(picks, terrain=model.terrain)
     t0 = time.perf_counter()
-    run = tomo.api.ensemble(survey, members=members, workers=workers, seed=seed)
+    out = None if keep is None else Path(keep) / f"ensemble-{name}.h5"
+    run = ensemble(survey, members=members, workers=workers, seed=seed, out=out)
     wall = time.perf_counter() - t0
+    return score(name, run, model, contour, wall, members)
+
+
+def score(name, run, model, contour, wall=float("nan"), members=None):
+    """The band of ``run`` (an ensemble) against the model's true rock surface."""
+    members = members or len(run.ensemble.specs)
     band = run.band(contour)
     x = band.x
     under = (x >= GEOPHONES[0]) & (x <= GEOPHONES[-1]) & band.constrained
@@ -83,10 +90,11 @@ def main(argv=None):
     parser.add_argument("--members", type=int, default=32)
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--keep", metavar="DIR", help="write each line's ensemble file into DIR")
     args = parser.parse_args(argv)
     rows = []
     for name in args.lines:
-        row = calibrate(name, args.members, args.workers, args.seed)
+        row = calibrate(name, args.members, args.workers, args.seed, args.keep)
         rows.append(row)
         print(f"  {name}: {row}", file=sys.stderr)
     print(f"\n{'line':>10} {'in band':>8} {'cols':>5} {'median width':>13} {'of depth':>8} {'largest':>8} "

@@ -20,6 +20,7 @@ from matplotlib.ticker import FuncFormatter, MaxNLocator
 
 from ..analysis.coverage import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
 from . import style
+from .bands import draw_band
 from .boreholes import draw_boreholes, lowest_borehole
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
@@ -115,6 +116,7 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
     ax.plot(shots[:, 0], shots[:, 1] + 0.03 * height, "*", ms=8.5, color=SHOT_COLOR, mec=style.BLACK,
             mew=0.5, zorder=7, label="shots", clip_on=False)
     draw_boreholes(ax, run, height)
+    draw_band(ax, run)
     if doi:
         line = investigation_elevation(run)
         ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6,

@@ -10,6 +10,13 @@ Surface file (CSV, one row per model column)::
 
     x,ground_z,depth_m,elevation_m,constrained[,easting,northing]
 
+or, for an ensemble file (``tomo ensemble``)::
+
+    x,ground_z,depth_m,depth_low_m,depth_high_m,elevation_m,constrained[,easting,northing]
+
+with ``depth_m`` the members' median and ``depth_low_m``, ``depth_high_m`` the 5-95 %
+band (:mod:`tomo.uncertainty.bands`).
+
 ``depth_m`` is vertical, below the ground at ``x``; ``elevation_m`` the elevation of
 the first place, going down from the ground, where the model reaches the chosen
 velocity; both are empty where the column never reaches it. ``constrained`` is 1 where
@@ -27,6 +34,7 @@ import numpy as np
 
 from ..analysis.surface import contour_surface
 from ..core.fileio import atomic_open
+from ..uncertainty.bands import surface_band
 
 __all__ = ["grid_table", "write_grid", "write_surface"]
 
@@ -69,17 +77,25 @@ def write_surface(path, run, velocity_m_s, source=None, surface=None):
     ``surface`` may be passed if already computed by :func:`contour_surface`.
     Returns the surface dict.
     """
-    surface = surface if surface is not None else contour_surface(run, velocity_m_s)
+    band = run.ensemble is not None
+    if band:
+        surface = surface_band(run, velocity_m_s)
+    else:
+        surface = surface if surface is not None else contour_surface(run, velocity_m_s)
     on_map = run.stations is not None
     if on_map:
         easting, northing = run.stations.map_at(surface["x"])
+    what = (f"median of {surface.n_members} members with the 5-95 % band (depth_low_m to depth_high_m)"
+            if band else "the tomogram's")
     with atomic_open(path, "w", encoding="utf-8", newline="") as f:
-        f.write(f"# tomo {run.tomo_version} {float(velocity_m_s):g} m/s iso-velocity surface"
+        f.write(f"# tomo {run.tomo_version} {float(velocity_m_s):g} m/s iso-velocity surface, {what}"
                 f"{f' from {source}' if source else ''}: depth vertical below ground (m), "
                 "empty where not reached; constrained = 1 where rays cross it\n")
-        f.write("x,ground_z,depth_m,elevation_m,constrained" + (",easting,northing\n" if on_map else "\n"))
+        f.write("x,ground_z,depth_m," + ("depth_low_m,depth_high_m," if band else "") + "elevation_m,constrained"
+                + (",easting,northing\n" if on_map else "\n"))
         for k in range(surface["x"].size):
             f.write(f"{surface['x'][k]:.3f},{surface['ground_z'][k]:.3f},{_fmt(surface['depth_m'][k], 3)},"
-                    f"{_fmt(surface['elevation_m'][k], 3)},{int(surface['constrained'][k])}"
+                    + (f"{_fmt(surface.depth_low_m[k], 3)},{_fmt(surface.depth_high_m[k], 3)}," if band else "")
+                    + f"{_fmt(surface['elevation_m'][k], 3)},{int(surface['constrained'][k])}"
                     + (f",{_fmt(easting[k], 3)},{_fmt(northing[k], 3)}\n" if on_map else "\n"))
     return surface

@@ -340,6 +340,14 @@ def _surface_table(run, velocity_m_s, step_m=10.0):
             + _table(["x (m)", "ground (m)", "depth (m)", "elevation (m)", "constrained"], rows, numeric=(0, 1, 2, 3)))
 
 
+def _ensemble_section(run, contour_m_s=None):
+    """The depth band of an ensemble's rock surface ('' for a single run)."""
+    from .ensemble_text import ensemble_html
+
+    html_ = ensemble_html(run, contour_m_s, esc=_esc)
+    return f'<h3 id="band">How sure the depth is: the ensemble</h3>{html_}' if html_ else ""
+
+
 def _misfit_section(run):
     chi2 = np.asarray(run.history.get("chi2", []), float)
     rms = np.asarray(run.history.get("rms_ms", []), float)
@@ -427,6 +435,7 @@ professional under the local codes.</div>
 {_boreholes_section(run)}
 <h2 id="misfit">5. Final misfit</h2>
 {_misfit_section(run)}
+{_ensemble_section(run, contour_m_s)}
 <h2 id="figures">6. Figures</h2>
 {''.join(fig_html)}
 <h2 id="cautions">7. Interpretation cautions</h2>

@@ -17,6 +17,7 @@ import numpy as np
 from ..analysis.surface import check_contour, contour_surface, refractor_contour
 from ..core.errors import InputError
 from ..figures.compare import refractor_profiles
+from ..uncertainty.bands import surface_band
 
 __all__ = ["SectionSurface", "export_contours", "section_surfaces"]
 
@@ -40,7 +41,8 @@ class SectionSurface:
         Above the depth of investigation (always True for a delay-time refractor, whose
         points each come from picks).
     low_elevation_m, high_elevation_m : ndarray or None
-        The band around the surface (a delay-time refractor's one sigma), or None.
+        The band around the surface (a delay-time refractor's one sigma, an ensemble's
+        5-95 % range), or None.
     """
 
     key: str
@@ -75,6 +77,14 @@ def section_surfaces(run, contours_m_s):
     """The tomogram's ``contours_m_s`` surfaces, then every layered delay-time refractor."""
     out = []
     for value in contours_m_s:
+        if run.ensemble is not None:
+            # an ensemble's surface: the members' median with their 5-95 % band
+            b = surface_band(run, value)
+            out.append(SectionSurface(f"contour-{value:.0f}", f"{value:.0f} m/s iso-velocity surface, median of "
+                                      f"{b.n_members} members with their 5-95 % band", float(value), b.x, b.ground_z,
+                                      b.depth_m, b.elevation_m, b.constrained, b.ground_z - b.depth_high_m,
+                                      b.ground_z - b.depth_low_m))
+            continue
         s = contour_surface(run, value)
         out.append(SectionSurface(f"contour-{value:.0f}", f"{value:.0f} m/s iso-velocity surface of the tomogram",
                                   float(value), s["x"], s["ground_z"], s["depth_m"], s["elevation_m"],

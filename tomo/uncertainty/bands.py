@@ -2,7 +2,18 @@
 
 For each kept member the surface is read as for a single run
 (:func:`tomo.analysis.surface.contour_surface`); the band is the 5th to 95th percentile
-of the members' depths per column and its middle line their median. Where extremal
+of the members' depths per column and its middle line their median.
+
+Which iso-velocity marks an interface is itself open: a smooth tomogram spreads a sharp
+step over a transition some metres thick, and the picks fix the delay times through it,
+not the velocity at which the step sat (the usual calibration against boreholes picks
+it; Lanz, Maurer & Green 1998, Geophysics 63, from memory). Each member therefore reads
+its surface at its own velocity, spread evenly (a golden-ratio sequence over the member
+numbers) in log-velocity across the middle third of the step between the layer
+velocities above and below the requested one (``contour_spread``): the band holds the
+choice of contour as well as the members' differences. Without a layered result to take
+the layer velocities from, the spread is +-15 % about the requested velocity (our
+choice: about the middle third of a step of 1:2.5). Where extremal
 bounds were computed (``tomo.uncertainty.bounds``) they widen the band at their
 columns, and from there, tapered linearly to nothing over ``BOUND_REACH_CELLS`` cells,
 the neighbouring columns, since a bound says how far the surface can move there, not
@@ -19,9 +30,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..analysis.surface import contour_surface
+from ..analysis.surface import contour_surface, layer_velocities, refractor_contour
 
-__all__ = ["SurfaceBand", "surface_band", "BOUND_REACH_CELLS"]
+__all__ = ["SurfaceBand", "surface_band", "contour_spread", "member_contours", "default_band_contour",
+           "BOUND_REACH_CELLS"]
 
 #: Columns either side of a bound's column that its widening reaches (tapered).
 BOUND_REACH_CELLS = 3
@@ -100,8 +112,10 @@ def surface_band(run, velocity_m_s, percentiles=(5.0, 95.0)):
     record = run.ensemble
     central = contour_surface(run, velocity_m_s)
     kept = record.velocity[record.kept]
-    depths = np.array([contour_surface(replace(run, velocity=v, ensemble=None), velocity_m_s).depth_m
-                       for v in kept])
+    lo_v, hi_v = contour_spread(run, central.velocity_m_s)
+    values = member_contours(record.index[record.kept], lo_v, hi_v)
+    depths = np.array([contour_surface(replace(run, velocity=v, ensemble=None), c).depth_m
+                       for v, c in zip(kept, values)])
     # a member whose column never reaches the velocity puts the surface below the grid:
     # count it at the grid's bottom, so the deep edge is not understated
     counted = np.where(np.isfinite(depths), depths, _bottom_depth(run)[None, :])
@@ -112,6 +126,27 @@ def surface_band(run, velocity_m_s, percentiles=(5.0, 95.0)):
     low, high = _widen(run, velocity_m_s, central.x, low, high, bounded_by)
     return SurfaceBand(float(central.velocity_m_s), central.x, central.ground_z, mid, low, high,
                        central.ground_z - mid, central.constrained, bounded_by, int(kept.shape[0]), depths)
+
+
+def contour_spread(run, velocity_m_s):
+    """The velocities (m/s) between which members read the ``velocity_m_s`` surface: the
+    middle third, in log-velocity, of the step between the layer velocities that
+    bracket it; +-15 % without a layered result (module docstring)."""
+    v = layer_velocities(run.layered) if run.layered else []
+    below = [a for a in v if a < velocity_m_s]
+    above = [a for a in v if a > velocity_m_s]
+    if below and above:
+        step = np.log(min(above)) - np.log(max(below))
+        return float(velocity_m_s * np.exp(-step / 6.0)), float(velocity_m_s * np.exp(step / 6.0))
+    return float(velocity_m_s / 1.15), float(velocity_m_s * 1.15)
+
+
+def member_contours(index, lo_v, hi_v):
+    """Each member's contour velocity (m/s): log-evenly spread between ``lo_v`` and
+    ``hi_v`` by the golden-ratio sequence of its number, the central member (0) in the
+    middle."""
+    u = np.mod(0.5 + np.asarray(index, float) * 0.6180339887498949, 1.0)
+    return np.exp(np.log(lo_v) + u * (np.log(hi_v) - np.log(lo_v)))
 
 
 def _widen(run, velocity_m_s, x, low, high, bounded_by):
@@ -129,3 +164,15 @@ def _widen(run, velocity_m_s, x, low, high, bounded_by):
                 bounded_by[k] = "members + extremal bound"
             low[k], high[k] = min(low[k], shallow), max(high[k], deep)
     return low, high
+
+
+def default_band_contour(run):
+    """The velocity (m/s) whose band is summarised by default: the layered result's
+    deepest refractor contour, else the geometric mean of the model's 5th and 95th
+    percentile velocities (the middle of the section's range in log-velocity)."""
+    value = refractor_contour(run.layered) if run.layered else None
+    if value is None:
+        v = np.asarray(run.velocity, float)
+        lo, hi = np.nanpercentile(v, [5.0, 95.0])
+        value = float(np.sqrt(lo * hi))
+    return float(value)

@@ -55,7 +55,7 @@ DEPTH_SPREAD = 0.10
 #: One-sigma relative spread of v0 and k of the gradient start.
 GRADIENT_SPREAD = 0.10
 #: The horizontal/vertical smoothing ratio ranges over this factor either way.
-RATIO_RANGE = 4.0
+RATIO_RANGE = 10.0
 
 
 @dataclass(frozen=True)
@@ -230,7 +230,8 @@ def run_member(task):
     picks = task.picks
     if spec.noise:
         rng = np.random.default_rng(spec.seed)
-        sigma = picks.sigma_s if picks.sigma_s is not None else np.full(len(picks), task.settings.default_sigma_ms * 1e-3)
+        sigma = (picks.sigma_s if picks.sigma_s is not None
+                 else np.full(len(picks), task.settings.default_sigma_ms * 1e-3))
         picks = picks.with_times(task.predicted_s + rng.normal(0.0, 1.0, len(picks)) * sigma, sigma)
     mesh = shifted_mesh(task.mesh, spec.shift_x, spec.shift_z)
     run = invert(picks, mesh, _start_velocity(task, mesh), _member_settings(task.settings, spec))

@@ -1,23 +1,6 @@
-"""The public Python API: whole steps of the workflow, from files or arrays to results.
+"""The workflow steps of the public API: survey, layers, tomography, figures, reports, exports.
 
-A session in a notebook::
-
-    import tomo
-
-    survey = tomo.read_survey("picks.csv", terrain="terrain.csv")
-    layers = tomo.interpret_layers(survey)          # intercept-time and delay-time layers
-    run = tomo.invert(survey, layers=layers)        # tomography from those layers
-    bedrock = run.surface(2100.0)                   # the 2100 m/s surface, depth in m
-    print(run.chi2, bedrock.depth_m)
-
-The command line calls only these functions (``tomo/cli``), so both use one set of
-defaults, each defined once: the model cell (half the station spacing,
-:func:`tomo.survey.meshspec.inversion_mesh_spec`), the pick sigma where a pick file has
-none (:data:`DEFAULT_SIGMA_MS`, for the QC, the layers and the inversion alike), the
-smoothing of the layered start
-(:data:`START_SMOOTHING_CELLS`). Progress goes to a callback or, without one, to the
-``logging`` logger ``"tomo"``; nothing here prints. Figures and reports import
-matplotlib when they are asked for, not before.
+Re-exported flat by :mod:`tomo.api` (see its docstring for the defaults they share).
 """
 
 from __future__ import annotations
@@ -29,33 +12,33 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal
 
-from .core.defaults import DEFAULT_SIGMA_MS
-from .core.errors import InputError, TomoError
-from .core.fileio import check_output_path, prepare_folder
-from .layered.branches import MAX_BRANCHES, check_branch_count
-from .layered.interpret import interpret_line
-from .layered.qc import QCReport, check_line
-from .layered.result import LayeredResult
-from .records.picker import PickSettings
-from .records.synthetic import RecordSettings
-from .results.layersfile import check_layers_match
-from .results.layersfile import read_layers as _read_layers_file
-from .results.layersfile import write_layers as _write_layers_file
-from .results.run import Run
-from .survey.geometry import station_spacing
-from .survey.meshspec import MeshSpec, inversion_mesh_spec, read_mesh_spec
-from .survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
-from .survey.units import DISTANCE_UNITS, TIME_UNITS
-from .tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
-from .tomography.inversion import invert as _invert
-from .tomography.mesh import Mesh, mesh_for_picks
-from .tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
+from ..core.defaults import DEFAULT_SIGMA_MS
+from ..core.errors import InputError, TomoError
+from ..core.fileio import check_output_path, prepare_folder
+from ..layered.branches import MAX_BRANCHES, check_branch_count
+from ..layered.interpret import interpret_line
+from ..layered.qc import QCReport, check_line
+from ..layered.result import LayeredResult
+from ..records.picker import PickSettings
+from ..records.synthetic import RecordSettings
+from ..results.layersfile import check_layers_match
+from ..results.layersfile import read_layers as _read_layers_file
+from ..results.layersfile import write_layers as _write_layers_file
+from ..results.run import Run
+from ..survey.geometry import station_spacing
+from ..survey.meshspec import MeshSpec, inversion_mesh_spec, read_mesh_spec
+from ..survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
+from ..survey.units import DISTANCE_UNITS, TIME_UNITS
+from ..tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
+from ..tomography.inversion import invert as _invert
+from ..tomography.mesh import Mesh, mesh_for_picks
+from ..tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
 
 if TYPE_CHECKING:  # imported for the type hints only: both load matplotlib
-    from .analysis.surface import Surface
-    from .results.exporting import Exported
+    from ..analysis.surface import Surface
+    from ..results.exporting import Exported
 
-__all__ = ["NO_TERRAIN_NOTE", "ensemble", "demo_dir", "read_survey", "check_survey", "interpret_layers", "write_layers",
+__all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interpret_layers", "write_layers",
            "read_layers", "write_profile", "invert", "read_run", "default_settings", "START_SMOOTHING_CELLS", "STARTS",
            "QC_DEFAULTS", "LAYERS_DEFAULTS", "DEFAULT_SIGMA_MS", "TIME_UNITS", "DISTANCE_UNITS", "SURVEY_DEFAULTS",
            "MAX_BRANCHES", "check_branch_count", "synthesize",
@@ -167,7 +150,7 @@ def write_profile(result: LayeredResult, path: PathLike) -> int:
     result has no profile); returns the number of rows."""
     import numpy as np
 
-    from .layered.profile import RefractorProfile, write_profile_csv
+    from ..layered.profile import RefractorProfile, write_profile_csv
 
     profile: Any = result.profile
     if profile is None:
@@ -186,7 +169,7 @@ def synthesize(model: PathLike, layout: PathLike, out: PathLike, **options: Any)
     ``progress``, ``records_dir`` and ``record_settings`` for SEG-Y shot records).
     Returns the Picks written and a dict (mesh, notices, fallbacks, shots, records).
     """
-    from .tomography.synth import synthesize as synth
+    from ..tomography.synth import synthesize as synth
 
     return synth(model, layout, out, **options)
 
@@ -333,7 +316,7 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
              "mesh_file": mesh_file, "stations_file": survey.stations_path}
     if layers is not None:
         extra["layers_file"] = layers_file
-    from .results.runfile import RunWriter
+    from ..results.runfile import RunWriter
 
     # the stations are not the inversion's business but go into every run file written
     checkpoint = None if out is None else RunWriter(out, stations=survey.stations)
@@ -343,95 +326,6 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     return Run.from_data(data)
 
 
-def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | None = None,
-             scheduler: str | None = None, out: PathLike | None = None, resume: bool = False,
-             start: Literal["layered", "gradient"] = "layered", layers: LayeredResult | PathLike | None = None,
-             mesh: PathLike | MeshSpec | None = None,
-             progress: Callable[[int, int, float, float | None], object] | None = None, **settings: Any) -> Run:
-    """An ensemble of inversions of a survey: the range of models the picks allow.
-
-    Members differ in the pick noise, the starting model, the smoothing ratio, the chi2
-    target and the placement of the grid (:mod:`tomo.uncertainty.members`); they run as
-    Dask tasks (:mod:`tomo.uncertainty.ensemble`). Returns the central member's
-    :class:`Run` with ``run.ensemble`` holding every member; ``run.band(v)`` gives the
-    depth band of the ``v`` m/s surface.
-
-    Parameters
-    ----------
-    members : int
-        Members, the central one included (at least 2).
-    seed : int
-        The same seed gives the same ensemble on any number of workers.
-    workers : int, optional
-        Local worker processes (default: the cores); ignored with ``scheduler``.
-    scheduler : str, optional
-        Address of a running Dask scheduler (``tcp://host:8786``).
-    out : path, optional
-        Ensemble file (a run file with an ``/ensemble`` group), rewritten after every
-        member, so an interrupted ensemble keeps what it finished.
-    resume : bool
-        Complete the ensemble in ``out`` instead of starting again.
-    progress : callable, optional
-        ``progress(done, total, elapsed_s, left_s)`` after every member.
-    start, layers, mesh, **settings
-        As for :func:`invert`.
-    """
-    from .tomography.starting import fit_gradient
-    from .uncertainty.ensemble import EnsembleSettings, run_ensemble
-    from .uncertainty.record import member_results, record_of
-
-    opts = _settings(settings)
-    smoothing = _check_start(start, layers, None, None)
-    ens = EnsembleSettings(members=members, seed=seed).check()
-    if layers is not None and not isinstance(layers, LayeredResult):
-        layers = read_layers(layers, survey)
-    terrain, notes = survey.ground()
-    grid, spec, _ = _mesh(survey, terrain, mesh)
-    if start == "layered" and layers is None:
-        try:
-            layers = interpret_line(survey.picks, terrain=terrain)
-        except TomoError as exc:
-            notes.append(f"layered starting model not available ({exc}); members start from the gradient")
-    fit = fit_gradient(survey.picks)
-    done, central = _resumed(out, ens, survey) if resume else ((), None)
-    extra = {"start": "layered" if layers is not None else "gradient", "mesh_spec": spec.as_dict(),
-             "picks_file": survey.picks_path, "terrain_file": survey.terrain_path}
-
-    def keep(result):
-        run = Run.from_data(result.central)
-        run.settings = {**extra, **run.settings}
-        run.notes = list(dict.fromkeys(list(survey.notices) + notes + list(run.notes)))
-        run.stations, run.ensemble = survey.stations, record_of(result)
-        if out is not None:
-            run.write(out)
-        return run
-
-    result = run_ensemble(survey.picks, grid, opts, ens, layers if start == "layered" else None,
-                          (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers or os.cpu_count() or 1, scheduler,
-                          done=member_results(central.ensemble) if central is not None else done,
-                          central=central, progress=progress, on_member=keep)
-    return keep(result)
-
-
-def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple, Run | None]:
-    """The finished members of the ensemble file ``out``, checked against this request."""
-    import numpy as np
-
-    if out is None or not Path(out).exists():
-        raise InputError("--resume needs the ensemble file of the interrupted run", path=out, field="--resume")
-    run = Run.read(out)
-    record = run.ensemble
-    if record is None:
-        raise InputError("not an ensemble file (no /ensemble group)", path=out)
-    if (record.settings.members, record.settings.seed) != (ens.members, ens.seed):
-        raise InputError(f"the file holds an ensemble of {record.settings.members} members with seed "
-                         f"{record.settings.seed}; resume it with the same --members and --seed", path=out)
-    observed = survey.picks.time_s * 1e3
-    if observed.shape != run.picks["observed_ms"].shape or not np.allclose(observed, run.picks["observed_ms"]):
-        raise InputError("the ensemble file holds other picks than these", path=out)
-    return (), run
-
-
 def read_run(path: PathLike) -> Run:
     """Read a run file (HDF5) written by :func:`invert` or ``tomo invert``."""
     return Run.read(path)
@@ -439,7 +333,7 @@ def read_run(path: PathLike) -> Run:
 
 def run_labels(path: PathLike, run: Run, other_path: PathLike, other: Run) -> tuple[str, str]:
     """Legend names of two runs: their file names with their starting models."""
-    from .figures.versus import run_labels as labels
+    from ..figures.versus import run_labels as labels
 
     return labels(path, run, other_path, other)
 
@@ -449,7 +343,7 @@ def compare_runs(run: Run, other: Run, contour_m_s: float | None = None,
     """One line comparing the ``contour_m_s`` surface (m/s; default: the layered
     result's deepest refractor contour) of two runs of the same picks: mean, RMS and
     largest difference, m, over the columns both constrain."""
-    from .figures.versus import LABELS, versus_summary, versus_table
+    from ..figures.versus import LABELS, versus_summary, versus_table
 
     labels = tuple(labels or LABELS)
     return versus_summary(versus_table(run, other, contour_m_s, labels), labels)
@@ -457,7 +351,7 @@ def compare_runs(run: Run, other: Run, contour_m_s: float | None = None,
 
 def plot_qc(survey: Survey, report: QCReport, path: PathLike) -> Path:
     """Save the travel-time curves with the picks QC flagged (PNG or PDF by extension)."""
-    from .figures.curves import qc_figure
+    from ..figures.curves import qc_figure
 
     qc_figure(survey.picks, report, path)
     return Path(path)
@@ -465,7 +359,7 @@ def plot_qc(survey: Survey, report: QCReport, path: PathLike) -> Path:
 
 def plot_branches(result: LayeredResult, path: PathLike, survey: Survey | None = None) -> Path:
     """Save the picks with their fitted branches per shot (PNG or PDF by extension)."""
-    from .figures.curves import branches_figure
+    from ..figures.curves import branches_figure
 
     branches_figure(result, path, picks=None if survey is None else survey.picks)
     return Path(path)
@@ -477,8 +371,8 @@ def plot_run(run: Run, out_dir: PathLike, formats: Sequence[str] = ("png", "pdf"
     """Save every figure of a run into ``out_dir`` as ``<name>.<format>``; with
     ``other`` (a second run of the same picks) also the ``versus`` figure. A failure
     leaves no partial set. Returns the files written."""
-    from .figures.bundle import plot_run as save_all
-    from .figures.versus import LABELS, versus_figure
+    from ..figures.bundle import plot_run as save_all
+    from ..figures.versus import LABELS, versus_figure
 
     extra = []
     if other is not None:
@@ -493,7 +387,7 @@ def write_report(run: Run, path: PathLike, source: PathLike | None = None, other
     """Write one self-contained HTML report of a run (figures embedded, cautions
     included), atomically; ``figure_pngs`` (name -> PNG bytes) reuses figures already
     drawn. Returns the path."""
-    from .results.report import write_report as write
+    from ..results.report import write_report as write
 
     return write(path, run, source=None if source is None else str(source), skip_note=skip_note,
                  figure_pngs=figure_pngs, other=other, labels=labels, contour_m_s=contour_m_s)
@@ -504,8 +398,8 @@ def add_boreholes(run: Run, path: PathLike | None) -> Run:
     placed on its line, replacing any it held; unchanged when ``path`` is None."""
     if path is None:
         return run
-    from .analysis.boreholes import place_boreholes
-    from .survey.boreholes import read_boreholes
+    from ..analysis.boreholes import place_boreholes
+    from ..survey.boreholes import read_boreholes
 
     run.boreholes = place_boreholes(read_boreholes(path), run)
     return run
@@ -513,7 +407,7 @@ def add_boreholes(run: Run, path: PathLike | None) -> Run:
 
 def write_grid(run: Run, path: PathLike, source: PathLike | None = None) -> int:
     """Write ``x, z, velocity_m_s, coverage_m`` per ground cell as CSV; returns the rows."""
-    from .results.export import write_grid as write
+    from ..results.export import write_grid as write
 
     return write(path, run, source=None if source is None else str(source))
 
@@ -521,7 +415,7 @@ def write_grid(run: Run, path: PathLike, source: PathLike | None = None) -> int:
 def write_surface(run: Run, surface: Surface, path: PathLike, source: PathLike | None = None) -> Surface:
     """Write ``x, ground_z, depth_m, elevation_m, constrained`` of ``surface`` (from
     :meth:`Run.surface`) as CSV, atomically."""
-    from .results.export import write_surface as write
+    from ..results.export import write_surface as write
 
     return write(path, run, surface.velocity_m_s, source=None if source is None else str(source), surface=surface)
 
@@ -552,7 +446,7 @@ def export(run: Run, *, grid: PathLike | None = None, surface: PathLike | None =
     Exported
         What was written (rows, surfaces, features, layers).
     """
-    from .results.exporting import export_run
+    from ..results.exporting import export_run
 
     return export_run(run, {"grid": grid, "surface": surface, "netcdf": netcdf, "geojson": geojson, "dxf": dxf},
                       contours_m_s=contours_m_s, crs=crs, source=None if source is None else str(source))
@@ -568,7 +462,7 @@ def pick_records(records: Sequence[PathLike], out: PathLike, layout: PathLike | 
     writes the pick file ``out`` with its trace table beside it. Returns the
     :class:`tomo.records.workflow.PickRun` (gathers, picks, every trace's status).
     """
-    from .records.workflow import pick_records as pick
+    from ..records.workflow import pick_records as pick
 
     return pick(list(records), out, layout_path=layout, corrections_path=corrections, settings=settings,
                 stack=stack, progress=progress)
@@ -577,7 +471,7 @@ def pick_records(records: Sequence[PathLike], out: PathLike, layout: PathLike | 
 def plot_gathers(result: Any, folder: PathLike) -> list[Path]:
     """Save a gather figure per shot and a figure of all picks of a :func:`pick_records`
     result into ``folder``; returns the files."""
-    from .figures.gathers import write_gather_figures
+    from ..figures.gathers import write_gather_figures
 
     return list(write_gather_figures(result, folder))
 

@@ -1,0 +1,117 @@
+"""The public API's uncertainty steps: ensembles of inversions and their depth bands."""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any, Literal
+
+from ..core.errors import InputError, TomoError
+from ..layered.interpret import interpret_line
+from ..layered.result import LayeredResult
+from ..results.run import Run
+from ..survey.meshspec import MeshSpec
+from ..survey.survey import Survey
+from .workflow import PathLike, _check_start, _mesh, _settings, read_layers
+
+__all__ = ["ensemble", "ensemble_summary"]
+
+
+def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | None = None,
+             scheduler: str | None = None, out: PathLike | None = None, resume: bool = False,
+             start: Literal["layered", "gradient"] = "layered", layers: LayeredResult | PathLike | None = None,
+             mesh: PathLike | MeshSpec | None = None,
+             progress: Callable[[int, int, float, float | None], object] | None = None, **settings: Any) -> Run:
+    """An ensemble of inversions of a survey: the range of models the picks allow.
+
+    Members differ in the pick noise, the starting model, the smoothing ratio, the chi2
+    target and the placement of the grid (:mod:`tomo.uncertainty.members`); they run as
+    Dask tasks (:mod:`tomo.uncertainty.ensemble`). Returns the central member's
+    :class:`Run` with ``run.ensemble`` holding every member; ``run.band(v)`` gives the
+    depth band of the ``v`` m/s surface.
+
+    Parameters
+    ----------
+    members : int
+        Members, the central one included (at least 2).
+    seed : int
+        The same seed gives the same ensemble on any number of workers.
+    workers : int, optional
+        Local worker processes (default: the cores); ignored with ``scheduler``.
+    scheduler : str, optional
+        Address of a running Dask scheduler (``tcp://host:8786``).
+    out : path, optional
+        Ensemble file (a run file with an ``/ensemble`` group), rewritten after every
+        member, so an interrupted ensemble keeps what it finished.
+    resume : bool
+        Complete the ensemble in ``out`` instead of starting again.
+    progress : callable, optional
+        ``progress(done, total, elapsed_s, left_s)`` after every member.
+    start, layers, mesh, **settings
+        As for :func:`invert`.
+    """
+    from ..tomography.starting import fit_gradient
+    from ..uncertainty.ensemble import EnsembleSettings, run_ensemble
+    from ..uncertainty.record import member_results, record_of
+
+    opts = _settings(settings)
+    smoothing = _check_start(start, layers, None, None)
+    ens = EnsembleSettings(members=members, seed=seed).check()
+    if layers is not None and not isinstance(layers, LayeredResult):
+        layers = read_layers(layers, survey)
+    terrain, notes = survey.ground()
+    grid, spec, _ = _mesh(survey, terrain, mesh)
+    if start == "layered" and layers is None:
+        try:
+            layers = interpret_line(survey.picks, terrain=terrain)
+        except TomoError as exc:
+            notes.append(f"layered starting model not available ({exc}); members start from the gradient")
+    fit = fit_gradient(survey.picks)
+    done, central = _resumed(out, ens, survey) if resume else ((), None)
+    extra = {"start": "layered" if layers is not None else "gradient", "mesh_spec": spec.as_dict(),
+             "picks_file": survey.picks_path, "terrain_file": survey.terrain_path}
+
+    def keep(result):
+        run = Run.from_data(result.central)
+        run.settings = {**extra, **run.settings}
+        run.notes = list(dict.fromkeys(list(survey.notices) + notes + list(run.notes)))
+        run.stations, run.ensemble = survey.stations, record_of(result)
+        if layers is not None and start == "layered":
+            run.layered = layers.to_dict()
+        if out is not None:
+            run.write(out)
+        return run
+
+    result = run_ensemble(survey.picks, grid, opts, ens, layers if start == "layered" else None,
+                          (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers or os.cpu_count() or 1, scheduler,
+                          done=member_results(central.ensemble) if central is not None else done,
+                          central=central, progress=progress, on_member=keep)
+    return keep(result)
+
+
+def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple, Run | None]:
+    """The finished members of the ensemble file ``out``, checked against this request."""
+    import numpy as np
+
+    if out is None or not Path(out).exists():
+        raise InputError("--resume needs the ensemble file of the interrupted run", path=out, field="--resume")
+    run = Run.read(out)
+    record = run.ensemble
+    if record is None:
+        raise InputError("not an ensemble file (no /ensemble group)", path=out)
+    if (record.settings.members, record.settings.seed) != (ens.members, ens.seed):
+        raise InputError(f"the file holds an ensemble of {record.settings.members} members with seed "
+                         f"{record.settings.seed}; resume it with the same --members and --seed", path=out)
+    observed = survey.picks.time_s * 1e3
+    if observed.shape != run.picks["observed_ms"].shape or not np.allclose(observed, run.picks["observed_ms"]):
+        raise InputError("the ensemble file holds other picks than these", path=out)
+    return (), run
+
+
+def ensemble_summary(run: Run, contour_m_s: float | None = None) -> list[str]:
+    """Lines saying what an ensemble holds: members kept, rejected and failed, and the
+    band of the ``contour_m_s`` surface (default: the layered result's deepest refractor)."""
+    from ..results.ensemble_text import describe_ensemble
+
+    return describe_ensemble(run, contour_m_s)
