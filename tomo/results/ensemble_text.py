@@ -83,7 +83,8 @@ def ensemble_html(run, contour_m_s=None, step_m=10.0, esc=lambda s: s):
         j = int(np.argmax(np.where(ok, band.width_m, -np.inf)))
         parts.append(f"<p>{esc(band_text(band))}: {esc(widest_reason(run, band, j))}.</p>")
     rows = []
-    for x in np.arange(np.ceil(band.x[ok].min() / step_m) * step_m, band.x[ok].max() + 1e-9, step_m) if np.any(ok) else []:
+    marks = np.arange(np.ceil(band.x[ok].min() / step_m) * step_m, band.x[ok].max() + 1e-9, step_m) if np.any(ok) else []
+    for x in marks:
         k = int(np.argmin(np.abs(band.x - x)))
         if ok[k]:
             rows.append(f"<tr><td>{band.x[k]:.1f}</td><td>{band.depth_m[k]:.1f}</td><td>{band.depth_low_m[k]:.1f}"
