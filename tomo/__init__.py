@@ -9,7 +9,7 @@ First-arrival picks of a line of geophones in; pick QC, a layered interpretation
     depth_m = run.surface(2100.0).depth_m
 
 Workflow functions (:mod:`tomo.api`): ``read_survey``, ``check_survey``,
-``interpret_layers``, ``read_layers``, ``write_layers``, ``invert``, ``read_run``,
+``interpret_layers``, ``read_layers``, ``write_layers``, ``invert``, ``ensemble``, ``read_run``,
 ``compare_runs``, ``plot_run``, ``write_report``, ``write_grid``, ``write_surface``,
 ``export`` (CSV, netCDF, GeoJSON, DXF), ``add_boreholes``, ``pick_records`` (SEG-2 /
 SEG-Y shot records to picks), ``synthesize``, ``demo_dir``.
@@ -42,6 +42,7 @@ if TYPE_CHECKING:  # type checkers and editors see the lazy names as what they a
         compare_runs,
         default_settings,
         demo_dir,
+        ensemble,
         export,
         interpret_layers,
         invert,
@@ -67,7 +68,7 @@ _LAZY = {
     **{name: "tomo.api" for name in (
         "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile",
         "invert", "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface",
-        "export", "add_boreholes", "pick_records", "synthesize",
+        "export", "add_boreholes", "pick_records", "synthesize", "ensemble",
         "default_settings", "demo_dir", "Survey", "Run", "LayeredResult", "InversionSettings")},
     "Surface": "tomo.analysis.surface",
     "velocity_section": "tomo.figures.section",
@@ -83,7 +84,7 @@ __all__ = [
     "__version__", "TomoError", "InputError", "SolverError",
     "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile", "invert",
     "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface", "export",
-    "add_boreholes", "pick_records", "synthesize", "default_settings", "demo_dir",
+    "add_boreholes", "pick_records", "synthesize", "ensemble", "default_settings", "demo_dir",
     "Survey", "Run", "LayeredResult", "InversionSettings", "Surface",
     "velocity_section", "coverage_section", "traveltime_fit", "residual_figure", "misfit_history",
     "layered_vs_gridded", "versus_figure",
