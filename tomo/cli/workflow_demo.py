@@ -26,7 +26,10 @@ DEMO_FILES = ("picks.csv", "terrain.csv", "site.toml", "layout.csv")
 #: Processes for the inversion's forward solves (the machine has 2 cores).
 DEMO_WORKERS = 2
 #: Steps the demo announces.
-STEPS = 6
+STEPS = 7
+#: Members of the demo's ensemble: enough to draw a band, few enough to keep the demo short
+#: (a report for a client would use the default 32).
+DEMO_MEMBERS = 8
 
 
 def demo_dir():
@@ -139,15 +142,27 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     labels = api.run_labels(run_path, run, second_path, second)
     _say(progress, "       " + api.compare_runs(run, second, labels=labels))
 
-    t0 = step(5, "plot", f"figures into {out}")
+    ensemble_path = out / "ensemble.h5"
+    t0 = step(5, "ensemble", f"{DEMO_MEMBERS} inversions of the same picks that differ in what the picks cannot "
+                             f"decide (log in {out / 'ensemble.txt'})")
+    _cli(["ensemble", picks, "--terrain", terrain, "--layers", str(out / "layers.json"), "--members",
+          str(DEMO_MEMBERS), "--workers", str(workers), "--out", str(ensemble_path)], "ensemble", out / "ensemble.txt")
+    timings["ensemble"] = time.perf_counter() - t0
+    files += [out / "ensemble.txt", ensemble_path]
+    # the ensemble's central member is the run of step 3 (the same picks, start and
+    # settings); its file adds every member, so the figures and report draw the band
+    run = api.read_run(ensemble_path)
+    _say(progress, "       " + api.ensemble_summary(run)[-1])
+
+    t0 = step(6, "plot", f"figures into {out}")
     written = api.plot_run(run, out, formats=("png", "pdf"), other=second, labels=labels, skip_note=progress)
     files += written
     # the report embeds the PNGs just written instead of drawing every figure again
     pngs = {path.stem: path.read_bytes() for path in written if path.suffix == ".png"}
     timings["plot"] = time.perf_counter() - t0
 
-    t0 = step(6, "report", "one self-contained HTML file")
-    report = api.write_report(run, out / "report.html", source=run_path, figure_pngs=pngs, other=second,
+    t0 = step(7, "report", "one self-contained HTML file")
+    report = api.write_report(run, out / "report.html", source=ensemble_path, figure_pngs=pngs, other=second,
                               labels=labels)
     timings["report"] = time.perf_counter() - t0
     files.append(report)

@@ -29,7 +29,7 @@ import numpy as np
 from ..core.errors import InputError, SolverError, TomoError
 from .members import MemberResult, MemberSpec, MemberTask, member_specs, run_member
 
-__all__ = ["EnsembleSettings", "Ensemble", "run_ensemble", "velocity_statistics", "dask_client",
+__all__ = ["EnsembleSettings", "Ensemble", "run_ensemble", "run_tasks", "velocity_statistics", "dask_client",
            "DEFAULT_MEMBERS", "MAX_CHI2"]
 
 DEFAULT_MEMBERS = 32
@@ -152,24 +152,26 @@ def _tasks(specs, picks, mesh, settings, layered, gradient, smoothing, predicted
                        gradient, smoothing) for spec in specs]
 
 
-def _run_local(tasks, report):
-    for task in tasks:
-        try:
-            result = run_member(task)
-        except TomoError as exc:
-            report(task.spec.index, None, str(exc))
-            continue
-        report(task.spec.index, result, None)
-
-
-def _run_dask(tasks, report, workers, scheduler):
+def run_tasks(func, tasks, keys, report, workers=1, scheduler=None):
+    """``func(task)`` for every task, in this process (one worker, no scheduler) or as
+    Dask tasks; ``report(key, result, error)`` as each finishes (in any order). A
+    TomoError raised by a task is reported by its message, any other by its type."""
+    if workers <= 1 and not scheduler:
+        for key, task in zip(keys, tasks):
+            try:
+                result = func(task)
+            except TomoError as exc:
+                report(key, None, str(exc))
+                continue
+            report(key, result, None)
+        return
     from distributed import as_completed
 
     client, cluster = dask_client(workers, scheduler)
     try:
         token = uuid.uuid4().hex[:12]  # keys unique on a shared cluster
-        futures = client.map(run_member, tasks, pure=False, key=[f"tomo-member-{token}-{t.spec.index}" for t in tasks])
-        index = {f.key: t.spec.index for f, t in zip(futures, tasks)}
+        futures = client.map(func, tasks, pure=False, key=[f"tomo-{token}-{k}" for k in keys])
+        index = {f.key: k for f, k in zip(futures, keys)}
         for future in as_completed(futures):
             if future.status == "error":
                 exc = future.exception()
@@ -255,10 +257,7 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
         todo = todo[1:]
     predicted_s = np.asarray(ensemble.central.picks["computed_ms"], float) * 1e-3
     tasks = _tasks(todo, picks, mesh, settings, layered, gradient, smoothing_cells, predicted_s)
-    if workers <= 1 and not scheduler:
-        _run_local(tasks, report)
-    else:
-        _run_dask(tasks, report, workers, scheduler)
+    run_tasks(run_member, tasks, [t.spec.index for t in tasks], report, workers, scheduler)
     if ensemble.central is None:
         raise SolverError("the central member of the ensemble did not finish")
     return ensemble

@@ -55,7 +55,7 @@ DEPTH_SPREAD = 0.10
 #: One-sigma relative spread of v0 and k of the gradient start.
 GRADIENT_SPREAD = 0.10
 #: The horizontal/vertical smoothing ratio ranges over this factor either way.
-RATIO_RANGE = 10.0
+RATIO_RANGE = 4.0
 
 
 @dataclass(frozen=True)
