@@ -85,3 +85,13 @@ def write_test_run(path, layered=True):
     run, mesh, model = make_run(layered=layered)
     write_run(path, run)
     return run, mesh, model
+
+
+def second_run(run, base_shift_m):
+    """Another run of ``run``'s picks (the same times and sigmas; they are what makes
+    two runs comparable) whose model has the refractor ``base_shift_m`` deeper."""
+    from dataclasses import replace
+
+    other = make_run(layered=False, base_shift_m=base_shift_m)[0]
+    return replace(other, picks=dict(other.picks, observed_ms=run.picks["observed_ms"],
+                                     sigma_ms=run.picks["sigma_ms"]))

@@ -1,6 +1,7 @@
 """Borehole files: reading, placing on a run's line, the bad-input errors, the run file,
 figures and the report (issue 14, part 1 without the ties to the interpretations)."""
 
+import re
 from dataclasses import replace
 
 import numpy as np
@@ -157,7 +158,7 @@ def test_boreholes_on_every_section_figure_and_in_the_report(tmp_path, base_run,
     out = tmp_path / "report.html"
     assert main(["report", str(run_path), "--out", str(out), "--boreholes", str(bh)]) == 0
     text = out.read_text(encoding="utf-8")
-    assert "<h3>Boreholes</h3>" in text and "BH-east" in text and "4.5 ± 0.5" in text
+    assert re.search(r"<h3>\d+\.\d+ Boreholes</h3>", text) and "BH-east" in text and "4.5 ± 0.5" in text
     assert main(["plot", str(run_path), "--out", str(tmp_path / "figs"), "--format", "png",
                  "--boreholes", str(write(tmp_path / "bad.csv", "x,depth_m\n99,3\n"))]) == 2
     err = capsys.readouterr().err

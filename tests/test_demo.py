@@ -144,3 +144,42 @@ def test_readme_python_example_runs_and_agrees_with_the_demo(demo_run, tmp_path)
         assert f"x = {x:5.1f} m: the {surface.velocity_m_s:.0f} m/s surface is {surface.depth_m[j]:.1f} m deep" \
             in done.stdout
     assert (tmp_path / "run.h5").is_file()
+
+
+def test_demo_report_is_client_ready(demo_run):
+    # issue 15: the project fields of the demo's own project file, numbered sections,
+    # a depth table with a range column and its source, a ray-path figure, settings in
+    # words: no internal setting keys, no absolute paths, nothing fetched from outside
+    import html as html_lib
+    import re
+    import tomllib
+
+    text = (demo_run / "report.html").read_text(encoding="utf-8")
+    body = re.sub(r'src="data:image/png;base64,[^"]+"', 'src=""', text)
+    readable = html_lib.unescape(body)
+    project = tomllib.loads((DEMO / "project.toml").read_text(encoding="utf-8"))
+    for key, value in project.items():
+        assert str(value) in readable, key
+    headings = re.findall(r'<h2 id="[a-z]+">(\d+)\. ([^<]+)</h2>', body)
+    assert [int(n) for n, _ in headings] == list(range(1, len(headings) + 1)) and len(headings) >= 9
+    assert headings[0][1] == "Project" and headings[-1][1] == "Interpretation cautions"
+    # the demo's report is drawn from its ensemble file: the range is the ensemble's band
+    assert "<th>range of depth (m)</th>" in body and "<b>Range:</b> 5-95 % of the depths of the" in body
+    depth = body[body.index('<h2 id="depth">'):body.index('<h2 id="figures">')]
+    rows = re.findall(r"<tr><td class=\"num\">(\d+)</td><td class=\"num\">([\d.]+)</td>", depth)
+    assert len(rows) >= 10 and rows[0] == ("1", "0") and rows[-1] == ("48", "117.5")  # geophone stations
+    assert 'id="fig-rays"' in body and 'id="fig-depth"' in body
+    from tomo.tomography.settings import InversionSettings
+
+    keys = set(InversionSettings().as_dict()) | {"picks_file", "terrain_file", "mesh_spec", "start_requested",
+                                                 "layers_file", "v_min_m_s_used", "sigma_default_used"}
+    shown = re.sub(r"<[^>]+>", " ", readable)
+    # the keys that are identifiers, not words ("solver" and "damping" are English)
+    for key in (k for k in keys if "_" in k):
+        assert not re.search(rf"\b{key}\b", shown), key
+    settings = readable[readable.index('<h2 id="settings">'):readable.index('<h2 id="layered">')]
+    values = re.findall(r"<td>([^<]*)</td>", settings)
+    assert len(values) > 20 and not {"null", "true", "false", "None", "True", "False"} & set(values)
+    assert str(demo_run) not in readable and str(DEMO) not in readable and "/tmp/" not in readable
+    assert "@page { size: A4" in body and "http://" not in body and "https://" not in body
+    assert "<script" not in body

@@ -8,7 +8,7 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
-from _runs import make_run
+from _runs import make_run, second_run
 
 from tomo.cli import main
 from tomo.figures.bundle import FIGURES
@@ -65,17 +65,24 @@ def test_report_carries_the_cautions(reports):
 
 def test_report_sections_and_numbers(reports):
     run, text = reports[True]
-    for heading in ("Input summary", "Pick quality", "Settings", "Layered interpretation", "Final misfit",
-                    "Figures", "Interpretation cautions"):
-        assert heading in text
+    headings = re.findall(r'<h2 id="[a-z]+">(\d+)\. ([^<]+)</h2>', text)
+    # every section numbered, in order, the cautions last
+    assert [int(n) for n, _ in headings] == list(range(1, len(headings) + 1))
+    names = [name for _, name in headings]
+    for heading in ("Project", "Survey and data", "Pick quality", "Settings", "Layered interpretation",
+                    "Tomography: fit to the picks", "Depth to the deepest refractor", "Figures",
+                    "Interpretation cautions"):
+        assert heading in names, heading
+    assert names[-1] == "Interpretation cautions"
+    assert re.findall(r"<h3>(\d+\.\d+) ", text)  # subsections numbered too
     assert "<td>Picks</td><td>36</td>" in text
     assert "3 (x = -2 to 35 m)" in text          # shots
-    assert "12 (x = 0 to 33 m" in text           # geophones
+    assert "12, stations 1 to 12 at x = 0 to 33 m" in text  # geophones
     assert f"<b>{run.chi2:.2f}</b>" in text and f"<b>{run.rms_ms:.2f} ms</b>" in text
     assert "510" in text and "1480" in text      # the layered table
     assert "made-up warning for the report test" in text
-    assert "max_iterations" in text              # settings
-    assert "Depth to the 995 m/s surface" in text  # contour of the layered refractor (510 + 1480) / 2
+    assert "Most iterations" in text and "max_iterations" not in text  # settings in words
+    assert "tomogram's 995 m/s surface" in text  # contour of the layered refractor (510 + 1480) / 2
 
 
 def test_report_says_when_the_tomography_started_from_the_layers(reports):
@@ -88,20 +95,23 @@ def test_report_says_when_the_tomography_started_from_the_layers(reports):
 
 
 def test_report_versus_a_second_run(tmp_path, capsys):
-    # the second run's refractor lies one cell (1 m) deeper: the comparison says so
-    # (exact; see tests/test_figures.py) and embeds its figure
+    # the second run's refractor lies one cell (1 m) deeper: the comparison says so,
+    # as a depth (exact; see tests/test_figures.py), embeds its figure and gives the
+    # depth table its range
     a, b = tmp_path / "a.h5", tmp_path / "b.h5"
     run, mesh, _ = make_run(layered=True)
     write_run(a, run)
-    write_run(b, make_run(layered=False, base_shift_m=mesh.cell)[0])
+    write_run(b, second_run(run, mesh.cell))
     out = tmp_path / "report.html"
     assert main(["report", str(a), "--out", str(out), "--versus", str(b)]) == 0
     text = out.read_text(encoding="utf-8")
     n = len(FIGURES) + 1
-    assert f"Against a second run of these picks (Figure {n}): 995 m/s surface, b.h5 (layered start) minus a.h5" in text
+    assert (f"Against a second run of these picks (Figure {n}): 995 m/s surface: b.h5 (layered start) puts it on "
+            "average 1.00 m deeper than a.h5") in text
     assert text.index("Against a second run") < text.index('id="fig-versus"') < text.index(f"Figure {n}.</b>")
-    assert "mean -1.00 m, RMS 1.00 m" in text
+    assert "depth difference +1.00 m, positive deeper; RMS 1.00 m" in text
     assert 'id="fig-versus"' in text and len(_images(text)) == len(FIGURES) + 1
+    assert "<b>Range:</b> between the 995 m/s surfaces of a.h5" in text
     # a contour outside the second model: one line, exit 2, no report
     bad = tmp_path / "bad.html"
     assert main(["report", str(a), "--out", str(bad), "--versus", str(b), "--contour", "4000"]) == 2
@@ -109,9 +119,41 @@ def test_report_versus_a_second_run(tmp_path, capsys):
     assert len(err) == 1 and "outside the model's range" in err[0] and not bad.exists()
 
 
+def test_report_refuses_runs_of_other_picks(tmp_path, capsys):
+    # a run of other picks (here: the times of another ground) is no second run of
+    # these: refused with what differs, one line, no report (issue 15)
+    a, b = tmp_path / "a.h5", tmp_path / "b.h5"
+    run, mesh, _ = make_run(layered=True)
+    write_run(a, run)
+    write_run(b, make_run(layered=False, base_shift_m=mesh.cell)[0])
+    out = tmp_path / "report.html"
+    for argv in (["report", str(a), "--out", str(out), "--versus", str(b)],
+                 ["plot", str(a), "--out", str(tmp_path / "figs"), "--versus", str(b)]):
+        assert main(argv) == 2
+        err = capsys.readouterr().err.strip().splitlines()
+        assert len(err) == 1 and "do not hold the same picks" in err[0] and "different times" in err[0], err
+    assert not out.exists() and not (tmp_path / "figs" / "versus.png").exists()
+
+
+def test_old_run_file_without_digest_is_compared_with_a_notice(tmp_path, capsys):
+    import h5py
+
+    a, b = tmp_path / "a.h5", tmp_path / "b.h5"
+    run, mesh, _ = make_run(layered=True)
+    write_run(a, run)
+    write_run(b, second_run(run, mesh.cell))
+    with h5py.File(b, "r+") as f:  # a run file written before the digest existed
+        del f.attrs["picks_digest"]
+    out = tmp_path / "report.html"
+    assert main(["report", str(a), "--out", str(out), "--versus", str(b)]) == 0
+    err = capsys.readouterr().err
+    assert "older run file without a picks digest" in err
+    assert "older run file without a picks digest" in out.read_text(encoding="utf-8")
+
+
 def test_report_without_layered_result_says_so(reports):
     _, text = reports[False]
-    assert len(_images(text)) == len(FIGURES) - 1
+    assert len(_images(text)) == len(FIGURES) - 2  # no layered comparison, no rock velocity for the depth figure
     assert "holds no layered interpretation" in text
     assert "comparison is left out" in text
 

@@ -43,7 +43,8 @@ __all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interp
            "QC_DEFAULTS", "LAYERS_DEFAULTS", "DEFAULT_SIGMA_MS", "TIME_UNITS", "DISTANCE_UNITS", "SURVEY_DEFAULTS",
            "MAX_BRANCHES", "check_branch_count", "synthesize",
            "add_boreholes", "plot_qc", "plot_branches", "prepare_folder", "plot_run", "compare_runs", "run_labels",
-           "write_report", "write_grid", "write_surface", "Survey", "Run", "LayeredResult", "QCReport",
+           "write_report", "read_project", "check_same_picks", "write_grid", "write_surface", "Survey", "Run",
+           "LayeredResult", "QCReport",
            "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path",
            "export", "pick_records", "plot_gathers", "PickSettings", "RecordSettings"]
 
@@ -367,30 +368,59 @@ def plot_branches(result: LayeredResult, path: PathLike, survey: Survey | None =
 
 def plot_run(run: Run, out_dir: PathLike, formats: Sequence[str] = ("png", "pdf"), other: Run | None = None,
              contour_m_s: float | None = None, labels: Sequence[str] | None = None,
-             skip_note: Callable[[str], object] | None = None) -> list[Path]:
+             skip_note: Callable[[str], object] | None = None, depth_range: Any = None) -> list[Path]:
     """Save every figure of a run into ``out_dir`` as ``<name>.<format>``; with
-    ``other`` (a second run of the same picks) also the ``versus`` figure. A failure
-    leaves no partial set. Returns the files written."""
+    ``other`` (a second run of the same picks; refused otherwise) also the ``versus``
+    figure, and the depth figure shades the range between the two runs unless
+    ``depth_range`` (a :class:`tomo.analysis.depth_range.DepthRange`, e.g. an ensemble's
+    band) is given. A failure leaves no partial set. Returns the files written."""
     from ..figures.bundle import plot_run as save_all
     from ..figures.versus import LABELS, versus_figure
+    from ..results.report_depth import rock_surface
 
     extra = []
+    names = tuple(labels or LABELS)
     if other is not None:
-        extra.append(("versus", versus_figure(run, other, contour_m_s, tuple(labels or LABELS))))
-    return save_all(run, out_dir, formats=tuple(formats), skip_note=skip_note, extra=extra)
+        extra.append(("versus", versus_figure(run, other, contour_m_s, names)))
+    _, depth_range = rock_surface(run, contour_m_s, depth_range, other, names)
+    return save_all(run, out_dir, formats=tuple(formats), skip_note=skip_note, extra=extra, depth_range=depth_range)
 
 
 def write_report(run: Run, path: PathLike, source: PathLike | None = None, other: Run | None = None,
                  contour_m_s: float | None = None, labels: Sequence[str] | None = None,
                  figure_pngs: dict[str, bytes] | None = None,
-                 skip_note: Callable[[str], object] | None = None) -> Path:
+                 skip_note: Callable[[str], object] | None = None, project: Any = None,
+                 depth_range: Any = None) -> Path:
     """Write one self-contained HTML report of a run (figures embedded, cautions
     included), atomically; ``figure_pngs`` (name -> PNG bytes) reuses figures already
-    drawn. Returns the path."""
+    drawn. ``project`` (:func:`read_project`) fills its project section; ``other`` (a
+    second run of the same picks, refused otherwise) adds the comparison; the depth
+    table's range is ``depth_range`` when given, else the two runs'. Returns the path."""
     from ..results.report import write_report as write
 
     return write(path, run, source=None if source is None else str(source), skip_note=skip_note,
-                 figure_pngs=figure_pngs, other=other, labels=labels, contour_m_s=contour_m_s)
+                 figure_pngs=figure_pngs, other=other, labels=labels, contour_m_s=contour_m_s, project=project,
+                 depth_range=depth_range)
+
+
+def read_project(path: PathLike | None = None, values: dict[str, Any] | None = None) -> Any:
+    """Project details for the report from a TOML file and/or ``values`` (name -> text,
+    which win): project, site, line, client, survey_date, crew, equipment,
+    coordinate_system, line_direction, author, checked_by, revision, report_date, notes
+    (:mod:`tomo.survey.project`; an unknown name is an InputError)."""
+    from ..survey.project import read_project as read
+
+    return read(path, values)
+
+
+def check_same_picks(run: Run, other: Run, labels: Sequence[str] | None = None) -> list[str]:
+    """Refuse two runs that do not hold the same picks and geometry (InputError naming
+    the difference); returns notices (e.g. an older run file compared without its
+    digest). Every two-run feature calls it (:mod:`tomo.analysis.digest`)."""
+    from ..analysis.digest import check_same_picks as check
+    from ..figures.versus import LABELS
+
+    return check(run, other, tuple(labels or LABELS))
 
 
 def add_boreholes(run: Run, path: PathLike | None) -> Run:

@@ -96,4 +96,8 @@ def read_versus(args):
     if args.versus is None:
         return run, None, None
     other = api.read_run(args.versus)
-    return run, other, api.run_labels(args.run_file, run, args.versus, other)
+    labels = api.run_labels(args.run_file, run, args.versus, other)
+    # two runs of different picks are refused here, before anything is drawn or written
+    for message in api.check_same_picks(run, other, labels):
+        note(message)
+    return run, other, labels

@@ -21,7 +21,7 @@ from ..core.errors import TomoError
 __all__ = ["demo_dir", "DEMO_FILES", "run_demo", "DemoResult"]
 
 #: Files the demo needs in the demo folder.
-DEMO_FILES = ("picks.csv", "terrain.csv", "site.toml", "layout.csv")
+DEMO_FILES = ("picks.csv", "terrain.csv", "site.toml", "layout.csv", "project.toml")
 
 #: Processes for the inversion's forward solves (the machine has 2 cores).
 DEMO_WORKERS = 2
@@ -163,7 +163,7 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
 
     t0 = step(7, "report", "one self-contained HTML file")
     report = api.write_report(run, out / "report.html", source=ensemble_path, figure_pngs=pngs, other=second,
-                              labels=labels)
+                              labels=labels, project=api.read_project(folder / "project.toml"))
     timings["report"] = time.perf_counter() - t0
     files.append(report)
     return DemoResult(out_dir=out, report=report, run_file=run_path, files=files, timings=timings)

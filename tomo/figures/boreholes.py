@@ -13,7 +13,7 @@ __all__ = ["draw_boreholes", "BOREHOLE_COLOR"]
 
 #: The logged interface: bluish green, apart from the vermillion shots and the
 #: reddish-purple depth of investigation.
-BOREHOLE_COLOR = style.PALETTE[2]
+BOREHOLE_COLOR = style.BOREHOLE_COLOR
 
 _HALO = [patheffects.withStroke(linewidth=3.0, foreground="white")]
 
@@ -29,8 +29,8 @@ def draw_boreholes(ax, run, height_m):
     b = run.boreholes
     for x, top, bottom in zip(b.x, ground, interface):
         ax.plot([x, x], [top, bottom], "-", color=style.BLACK, lw=1.6, zorder=8, path_effects=_HALO)
-    ax.errorbar(b.x, interface, yerr=b.sigma_m, fmt="D", ms=4.5, color=BOREHOLE_COLOR, mec=style.BLACK, mew=0.6,
-                ecolor=style.BLACK, elinewidth=1.0, capsize=3, zorder=9,
+    ax.errorbar(b.x, interface, yerr=b.sigma_m, fmt=style.BOREHOLE_MARKER, ms=4.5, color=BOREHOLE_COLOR,
+                mec=style.BLACK, mew=0.6, ecolor=style.BLACK, elinewidth=1.0, capsize=3, zorder=9,
                 label="boreholes: logged interface (bar: 1 sigma)")
     for x, top, label in zip(b.x, ground, b.label):
         ax.annotate(label, (x, top + 0.06 * height_m), ha="center", va="bottom", fontsize=7, zorder=9,

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..core.fileio import prepare_folder
-from . import compare, fit, section, style
+from . import compare, depth, fit, rays, section, style
 
 __all__ = ["FIGURES", "FigureSpec", "make_figures", "plot_run"]
 
@@ -28,7 +28,13 @@ FIGURES = (
     FigureSpec("velocity", "Velocity section over the terrain. Pale grey: no ray reaches these cells (below the "
                "deepest ray); dashed line: depth of investigation, above which 95 % of the ray length lies.",
                section.velocity_section),
-    FigureSpec("coverage", "Ray coverage: ray length per cell; zero-coverage cells blank.", section.coverage_section),
+    FigureSpec("coverage", "Ray coverage: ray length per cell; pale grey where no ray crosses a cell.",
+               section.coverage_section),
+    FigureSpec("rays", "Ray paths of every pick through the final model. Where rays crowd along one path, the "
+               "ground below it is seen by few or none; numbers on top are geophone stations.", rays.ray_figure),
+    FigureSpec("depth", "Depth below the ground to the deepest refractor (the tomogram's contour at the layered "
+               "refractor's velocity) with its range, the delay-time refractor with one sigma, and the boreholes; "
+               "numbers on top are geophone stations.", depth.depth_figure),
     FigureSpec("traveltimes", "Observed picks and times computed in the final model, every shot.", fit.traveltime_fit),
     FigureSpec("residuals", "Residuals against offset and their distribution beside the pick uncertainty.",
                fit.residual_figure),
@@ -39,25 +45,28 @@ FIGURES = (
 )
 
 
-def make_figures(run, skip_note=None):
+def make_figures(run, skip_note=None, depth_range=None):
     """Draw every run figure.
 
     Returns a list of (FigureSpec, Figure) for the figures that apply; a figure whose
     data the run lacks (the layered comparison without a layered result) is skipped
-    and ``skip_note(message)`` is called if given.
+    and ``skip_note(message)`` is called if given. ``depth_range``
+    (:class:`tomo.analysis.depth_range.DepthRange`) is shaded in the depth figure.
     """
     out = []
     for spec in FIGURES:
-        fig = spec.draw(run)
+        fig = spec.draw(run, depth_range=depth_range) if spec.name == "depth" else spec.draw(run)
         if fig is None:
             if skip_note:
-                skip_note(f"skipped the '{spec.name}' figure: the run file holds no layered refractor profile")
+                why = ("holds no layered result to take the refractor's velocity from" if spec.name == "depth"
+                       else "holds no layered refractor profile")
+                skip_note(f"skipped the '{spec.name}' figure: the run file {why}")
             continue
         out.append((spec, fig))
     return out
 
 
-def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None, extra=()):
+def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None, extra=(), depth_range=None):
     """Save every run figure into ``out_dir`` as ``<name>.<format>``.
 
     ``extra`` holds more (name, Figure) pairs to save with them (e.g. the comparison
@@ -72,7 +81,7 @@ def plot_run(run, out_dir, formats=("png", "pdf"), skip_note=None, progress=None
         The files written.
     """
     out_dir = prepare_folder(out_dir)
-    figures = make_figures(run, skip_note) + [(FigureSpec(name, "", None), fig) for name, fig in extra]
+    figures = make_figures(run, skip_note, depth_range) + [(FigureSpec(name, "", None), fig) for name, fig in extra]
     tmp = Path(tempfile.mkdtemp(prefix=".tomo-plot.", dir=out_dir))
     written = []
     try:

@@ -10,7 +10,11 @@ from . import style
 
 __all__ = ["qc_figure", "branches_figure"]
 
-_MARKERS = ["o", "s", "^", "D", "v", "P", "X", "<", ">"]
+#: Pick markers per shot; stars, downward triangles and diamonds are kept for shots,
+#: geophones and boreholes (:mod:`tomo.figures.style`).
+_MARKERS = ["o", "s", "^", "P", "X", "<", ">", "h", "p"]
+#: Crossovers: white squares (not the borehole diamond).
+_CROSSOVER = "s"
 #: Okabe-Ito vermillion, reserved for flags.
 FLAG = "#D55E00"
 
@@ -45,7 +49,8 @@ def qc_figure(picks, report, path):
             ax.plot(x[part], t[part], "-", color=colours[k], lw=0.8, alpha=0.8)
         ax.plot(x, t, _MARKERS[k % len(_MARKERS)], color=colours[k], ms=3, mfc="none", mew=0.8,
                 label=f"shot {sx:g} m")
-        ax.plot([sx], [0], marker="v", color=colours[k], ms=7, clip_on=False, zorder=5)
+        ax.plot([sx], [0], clip_on=False, zorder=5, **style.shot_style(colours[k], 9))
+    ax.plot([], [], label="shot (colour of its picks)", **style.shot_style(style.GREY, 8))
     mask = report.outlier_mask
     if mask.size and mask.any():
         ax.plot(picks.receiver_x[mask], picks.time_s[mask] * 1e3, "o", ms=9, mfc="none", mec=FLAG, mew=1.6,
@@ -87,6 +92,7 @@ def branches_figure(result, path, picks=None, max_columns=3):
     axes = fig.subplots(nrow, ncol, sharex=True, sharey=True, squeeze=False)
     tmax = max([float(np.max(f.times_s)) for f, _ in sum(by_shot.values(), []) if f.times_s.size] + [1e-3]) * 1e3
     layer_colours = [style.PALETTE[k] for k in (0, 2, 1, 5, 4)]
+    labels = []
     for ax, sx in zip(axes.flat, shots):
         for fit, lob in by_shot[sx]:
             xs = fit.shot_x + fit.side * fit.offsets_m
@@ -107,13 +113,17 @@ def branches_figure(result, path, picks=None, max_columns=3):
                 # the first branches of the two sides meet at the shot: push their labels
                 # apart, away from the shot
                 first = b.index == 1
-                ax.annotate(f"{b.velocity_m_s:.0f}", (fit.shot_x + fit.side * um, float(b.time(um)) * 1e3),
-                            xytext=(fit.side * (5 if first else 3), -10), textcoords="offset points",
-                            ha=("left" if fit.side > 0 else "right") if first else "center",
-                            fontsize=7, color=colour)
+                labels.append(ax.annotate(f"{b.velocity_m_s:.0f}", (fit.shot_x + fit.side * um,
+                                                                    float(b.time(um)) * 1e3),
+                                          xytext=(fit.side * (5 if first else 3), -10), textcoords="offset points",
+                                          ha=("left" if fit.side > 0 else "right") if first else "center",
+                                          fontsize=7, color=colour, zorder=7,
+                                          # legible where a label sits on a branch or a pick
+                                          bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none",
+                                                "alpha": 0.8}))
             for c, b in zip(fit.crossovers_m, fit.branches[:-1]):
                 if math.isfinite(c) and c > 0:
-                    ax.plot(fit.shot_x + fit.side * c, float(b.time(c)) * 1e3, "D", ms=4, color=style.BLACK,
+                    ax.plot(fit.shot_x + fit.side * c, float(b.time(c)) * 1e3, _CROSSOVER, ms=4, color=style.BLACK,
                             mfc="white", mew=0.9, zorder=5)
         if picks is not None:
             used = np.zeros(len(picks), bool)
@@ -122,7 +132,7 @@ def branches_figure(result, path, picks=None, max_columns=3):
             out = ~used & (np.abs(picks.source_x - sx) < 1e-3)
             if np.any(out):
                 ax.plot(picks.receiver_x[out], picks.time_s[out] * 1e3, "x", color=FLAG, ms=6, mew=1.4, zorder=6)
-        ax.plot([sx], [0], marker="v", color=style.BLACK, ms=6, clip_on=False, zorder=5)
+        ax.plot([sx], [0], clip_on=False, zorder=5, **style.shot_style(size=9))
         ax.set_title(f"shot at {sx:g} m", fontsize=9)
         ax.set_ylim(0, tmax * 1.12)
     for ax in axes.flat[len(shots):]:
@@ -136,7 +146,8 @@ def branches_figure(result, path, picks=None, max_columns=3):
     handles = [Line2D([], [], color=layer_colours[k % len(layer_colours)], lw=1.4,
                       label=f"layer {k + 1} ({lay.velocity_m_s:.0f} m/s)") for k, lay in enumerate(result.layers)]
     handles += [Line2D([], [], ls="none", marker="o", mfc="none", color=style.GREY, ms=4, label="picks"),
-                Line2D([], [], ls="none", marker="D", mfc="white", color=style.BLACK, ms=4, label="crossover")]
+                Line2D([], [], ls="none", marker=_CROSSOVER, mfc="white", color=style.BLACK, ms=4, label="crossover"),
+                Line2D([], [], label="shot", **style.shot_style(size=8))]
     if any(0 in lob for lob in result.layer_of_branch):
         handles.append(Line2D([], [], color=style.BLACK, lw=1.4, label="branch matching no layer"))
     if picks is not None:
@@ -145,4 +156,29 @@ def branches_figure(result, path, picks=None, max_columns=3):
                bbox_to_anchor=(0.5, 0.0))
     fig.suptitle("Travel-time branches (labels: apparent velocity, m/s)", fontsize=10)
     fig.tight_layout(rect=(0, 0.07 if nrow > 1 else 0.1, 1, 1))
+    _declutter(fig, labels)
     return style.save(fig, path)
+
+
+def _declutter(fig, labels, tries=6):
+    """Move velocity labels that would overlap an earlier one (or leave their panel)
+    down, then up, by a label height at a time: a label is for reading."""
+    renderer = fig.canvas.get_renderer()
+    placed = {}
+    for text in labels:
+        ax = text.axes
+        box_ax = ax.get_window_extent(renderer)
+        x0, y0 = text.xyann
+        height_pt = text.get_window_extent(renderer).height * 72.0 / fig.dpi + 1.0
+        for k in range(tries + 1):
+            # 0, -1, +1, -2, +2, ... label heights from the first choice
+            step = (k + 1) // 2 * (-1 if k % 2 else 1)
+            text.xyann = (x0, y0 + step * height_pt)
+            box = text.get_window_extent(renderer).expanded(1.05, 1.1)
+            inside = box.x0 >= box_ax.x0 and box.x1 <= box_ax.x1 and box.y0 >= box_ax.y0
+            if inside and not any(box.overlaps(other) for other in placed.get(ax, [])):
+                break
+        else:
+            text.xyann = (x0, y0)
+            box = text.get_window_extent(renderer)
+        placed.setdefault(ax, []).append(box)

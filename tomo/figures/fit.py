@@ -40,10 +40,10 @@ def traveltime_fit(run, title="Observed and computed first-arrival times"):
         for side in (rx < sx, rx > sx):
             if side.sum() > 0:
                 ax.plot(rx[side], p["computed_ms"][sel][order][side], "-", color=colour, lw=1.0, zorder=2)
-        ax.plot([sx], [0.0], "*", ms=8, color=colour, mec=style.BLACK, mew=0.4, clip_on=False, zorder=4)
+        ax.plot([sx], [0.0], clip_on=False, zorder=4, **style.shot_style(colour, 8))
     ax.plot([], [], "o", ms=3, mfc="none", mec=style.GREY, label="observed pick")
     ax.plot([], [], "-", color=style.GREY, label="computed in final model")
-    ax.plot([], [], "*", ms=8, color=style.GREY, mec=style.BLACK, mew=0.4, label="shot position")
+    ax.plot([], [], label="shot position", **style.shot_style(style.GREY, 8))
     ax.set_ylim(bottom=0.0)
     ax.set_xlabel("Geophone position along line (m)")
     ax.set_ylabel("First-arrival time (ms)")
@@ -128,10 +128,11 @@ def misfit_history(run, title="Misfit history"):
         a.set_xlabel("Iteration")
         a.xaxis.get_major_locator().set_params(integer=True)
         if a.get_yscale() == "log":
-            # 2, 3, 5 instead of 2 x 10^0: easier to read
+            # ticks at 1, 2, 5 x 10^k around the data (every point between labelled
+            # ticks), written 2, 5, 10 rather than 2 x 10^0
+            style.log_ticks_covering(a, chi2 if a is ax else lam)
             a.yaxis.set_major_formatter(plain)
-            a.yaxis.set_minor_formatter(FuncFormatter(
-                lambda value, _: f"{value:g}" if f"{value:g}"[0] in "25" else ""))
+            a.yaxis.set_minor_formatter(FuncFormatter(lambda value, _: ""))
     fig.suptitle(f"{title}: {run.iterations} iterations, stopped because {run.stop_reason or 'not recorded'}",
                  y=0.98)
     fig.tight_layout(rect=(0, 0, 1, 0.93))

@@ -11,6 +11,7 @@ Boreholes the run holds are drawn on every section (:mod:`tomo.figures.boreholes
 
 from __future__ import annotations
 
+import matplotlib
 import numpy as np
 from matplotlib import patheffects
 from matplotlib.colors import LogNorm
@@ -19,17 +20,18 @@ from matplotlib.path import Path as MplPath
 from matplotlib.ticker import FuncFormatter, MaxNLocator
 
 from ..analysis.coverage import covered, deepest_ray_elevation, ground_elevation, investigation_elevation, ray_cells
+from ..analysis.stations import every_nth, geophone_stations
 from . import style
 from .bands import draw_band
 from .boreholes import draw_boreholes, lowest_borehole
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
-           "display_cells", "colorbar", "colour_range", "stations", "view_window"]
+           "display_cells", "colorbar", "colour_range", "stations", "view_window", "station_axis"]
 
 #: Pale grey for ground the data do not constrain.
 BLANK = "#e4e4e4"
-SHOT_COLOR = style.PALETTE[3]      # vermillion
-GEOPHONE_COLOR = style.BLACK
+SHOT_COLOR = style.SHOT_COLOR
+GEOPHONE_COLOR = style.GEOPHONE_COLOR
 DOI_COLOR = style.PALETTE[5]       # reddish purple, distinct on cividis and viridis
 
 
@@ -111,10 +113,9 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
     ax.plot(gx, gz, color=style.BLACK, lw=1.0, zorder=5)
     shots, geos = stations(run)
     height = z_max - z_min
-    ax.plot(geos[:, 0], geos[:, 1] + 0.012 * height, "v", ms=3.2, color=GEOPHONE_COLOR, zorder=6,
+    ax.plot(geos[:, 0], geos[:, 1] + 0.012 * height, style.GEOPHONE_MARKER, ms=3.2, color=GEOPHONE_COLOR, zorder=6,
             label="geophones", clip_on=False)
-    ax.plot(shots[:, 0], shots[:, 1] + 0.03 * height, "*", ms=8.5, color=SHOT_COLOR, mec=style.BLACK,
-            mew=0.5, zorder=7, label="shots", clip_on=False)
+    ax.plot(shots[:, 0], shots[:, 1] + 0.03 * height, zorder=7, label="shots", clip_on=False, **style.shot_style())
     draw_boreholes(ax, run, height)
     draw_band(ax, run)
     if doi:
@@ -128,6 +129,23 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
     ax.set_ylabel("Elevation (m)")
     ax.grid(False)
     return clip, ve
+
+
+def station_axis(ax, run, target_m=10.0):
+    """Geophone station numbers (1 at the smallest x; :mod:`tomo.analysis.stations`)
+    along the top of ``ax``, every n-th about ``target_m`` apart, the last one always."""
+    x, numbers = geophone_stations(run)
+    if x.size == 0:
+        return None
+    n = every_nth(x, target_m)
+    keep = np.arange(0, x.size, n)
+    if keep[-1] != x.size - 1 and x.size - 1 - keep[-1] >= max(n // 2, 1):
+        keep = np.append(keep, x.size - 1)
+    top = ax.secondary_xaxis("top")
+    top.set_xticks(x[keep], [str(k) for k in numbers[keep]])
+    top.tick_params(labelsize=7, length=2.5, pad=1.5)
+    top.set_xlabel("Geophone station", fontsize=8, labelpad=2)
+    return top
 
 
 def display_cells(run, values):
@@ -231,13 +249,14 @@ def velocity_section(run, contours_m_s=None, vertical_exaggeration=None, title="
             t.set_color(style.BLACK)
             t.set_bbox({"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
     colorbar(fig, ax, image, "P-wave velocity (m/s)", extend=extend)
+    station_axis(ax, run)
     ax.set_title(f"{title} (vertical exaggeration {ve:g}:1; contours in m/s)")
     _legend(ax)
     return fig
 
 
 def coverage_section(run, vertical_exaggeration=None, title="Ray coverage"):
-    """Ray length per model cell (m, log scale) over the terrain; zero-coverage cells blank."""
+    """Ray length per model cell (m, log scale) over the terrain; cells no ray crosses pale grey."""
     fig = style.new_figure(height_in=4.2)
     ax = fig.add_subplot(1, 1, 1)
     clip, ve = draw_base(ax, run, vertical_exaggeration)
@@ -248,13 +267,16 @@ def coverage_section(run, vertical_exaggeration=None, title="Ray coverage"):
     if positive.size:
         lo = max(float(np.percentile(positive, 2)), 1e-3)
         hi = max(float(positive.max()), lo * 10)
-        image = ax.pcolormesh(_edges(run.x), _edges(run.z), display_cells(run, data), cmap=style.COVERAGE_CMAP,
+        # cells no ray crosses take the legend's pale grey, also inside the ray envelope
+        cmap = matplotlib.colormaps[style.COVERAGE_CMAP].with_extremes(bad=BLANK)
+        image = ax.pcolormesh(_edges(run.x), _edges(run.z), display_cells(run, data), cmap=cmap,
                               norm=LogNorm(vmin=lo, vmax=hi), shading="flat", zorder=1, rasterized=True)
         image.set_clip_path(clip)
         bar = colorbar(fig, ax, image, "Ray length in cell (m)", extend="min")
         plain = FuncFormatter(lambda value, _: f"{value:g}")
         bar.ax.yaxis.set_major_formatter(plain)
         bar.ax.yaxis.set_minor_formatter(FuncFormatter(lambda value, _: f"{value:g}" if str(value)[0] in "25" else ""))
+    station_axis(ax, run)
     ax.set_title(f"{title} (vertical exaggeration {ve:g}:1)")
     _legend(ax, blank_label="no ray crosses the cell")
     return fig

@@ -9,6 +9,7 @@ the same with and without deficient colour vision.
 from __future__ import annotations
 
 import matplotlib
+import numpy as np
 
 matplotlib.use("Agg")
 
@@ -20,6 +21,21 @@ BLACK = "#000000"
 GREY = "#7f7f7f"
 VELOCITY_CMAP = "cividis"
 COVERAGE_CMAP = "viridis"
+
+#: One symbol per thing in every figure: shots are stars, geophones downward triangles,
+#: boreholes diamonds (no other marker uses these shapes).
+SHOT_MARKER = "*"
+SHOT_COLOR = PALETTE[3]        # vermillion, with a black edge
+GEOPHONE_MARKER = "v"
+GEOPHONE_COLOR = BLACK
+BOREHOLE_MARKER = "D"
+BOREHOLE_COLOR = PALETTE[2]    # bluish green
+
+
+def shot_style(color=None, size=8.5):
+    """Keyword arguments of ``ax.plot`` for a shot marker (``color``: a per-shot colour)."""
+    return {"marker": SHOT_MARKER, "ls": "none", "ms": size, "color": color or SHOT_COLOR, "mec": BLACK, "mew": 0.5}
+
 
 #: A4 is 210 mm wide; with margins a full-width figure is about 7 inches.
 FULL_WIDTH_IN = 7.0
@@ -67,3 +83,22 @@ def save(fig, path):
         fig.savefig(tmp, format=path.suffix.lstrip(".").lower() or "png", bbox_inches="tight")
     plt.close(fig)
     return path
+
+
+def log_ticks_covering(ax, values, axis="y"):
+    """On a log axis, major ticks at 1, 2, 5 x 10^k from the tick at or below the
+    smallest of ``values`` to the tick at or above the largest, and the limits just
+    outside them: every point lies between labelled ticks."""
+    from matplotlib.ticker import FixedLocator
+
+    v = np.asarray(values, float)
+    v = v[np.isfinite(v) & (v > 0)]
+    if v.size == 0:
+        return
+    k0, k1 = int(np.floor(np.log10(v.min()))) - 1, int(np.ceil(np.log10(v.max()))) + 1
+    ticks = np.array([m * 10.0 ** k for k in range(k0, k1 + 1) for m in (1, 2, 5)])
+    lo, hi = ticks[ticks <= v.min() * (1 + 1e-9)].max(), ticks[ticks >= v.max() * (1 - 1e-9)].min()
+    shown = ticks[(ticks >= lo) & (ticks <= hi)]
+    target = ax.yaxis if axis == "y" else ax.xaxis
+    target.set_major_locator(FixedLocator(shown))
+    (ax.set_ylim if axis == "y" else ax.set_xlim)(lo / 1.08, hi * 1.08)

@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from ..analysis.coverage import covered
+from ..analysis.digest import check_same_picks
 from ..analysis.surface import check_contour, contour_surface, refractor_contour
 from ..core.errors import InputError
 from . import style
@@ -78,13 +79,17 @@ def versus_table(run, other, contour_m_s=None, labels=LABELS):
         ``difference_m`` (other minus this, m; positive: the other run's surface lies
         higher), ``this_constrained`` and ``other_constrained`` (each surface above its
         run's depth of investigation) and ``constrained`` (both, and the column within
-        the geophone spread).
+        the geophone spread); ``notes``, what the user should know of the comparison (an
+        older run file without a picks digest).
 
     Raises
     ------
     InputError
-        If the runs share no part of the line, or the velocity is outside a model's range.
+        If the runs do not hold the same picks and geometry
+        (:func:`tomo.analysis.digest.check_same_picks`), share no part of the line, or
+        the velocity is outside a model's range.
     """
+    notes = check_same_picks(run, other, labels)
     value = _contour_value(run, other, contour_m_s)
     x, xo = np.asarray(run.x, float), np.asarray(other.x, float)
     if min(x.max(), xo.max()) <= max(x.min(), xo.min()):
@@ -110,19 +115,26 @@ def versus_table(run, other, contour_m_s=None, labels=LABELS):
     spread = (x >= rx.min()) & (x <= rx.max())
     return {"contour_m_s": value, "x": x, "elevation_m": a.elevation_m, "other_elevation_m": zb,
             "difference_m": diff, "constrained": a.constrained & cb & np.isfinite(diff) & spread,
-            "this_constrained": a.constrained, "other_constrained": cb}
+            "this_constrained": a.constrained, "other_constrained": cb, "notes": notes}
 
 
 def versus_summary(table, labels=LABELS):
-    """One line: how far apart the two surfaces are where both are constrained."""
-    d = table["difference_m"][table["constrained"]]
-    head = f"{table['contour_m_s']:.0f} m/s surface, {labels[1]} minus {labels[0]}"
-    if d.size == 0:
+    """One line: how far apart the two surfaces are where both are constrained, as a
+    depth difference (positive: the other run's surface is deeper)."""
+    deeper = -table["difference_m"][table["constrained"]]  # same ground: higher is shallower
+    head = f"{table['contour_m_s']:.0f} m/s surface"
+    if deeper.size == 0:
         return f"{head}: no column where both lie above the depth of investigation"
-    j = int(np.argmax(np.abs(d)))
+    j = int(np.argmax(np.abs(deeper)))
     x_at = table["x"][table["constrained"]][j]
-    return (f"{head}: mean {np.mean(d):+.2f} m, RMS {np.sqrt(np.mean(d ** 2)):.2f} m, largest {d[j]:+.2f} m "
-            f"at x = {x_at:g} m, over the {d.size} columns of the spread where both lie above the depth "
+    mean = float(np.mean(deeper))
+
+    def way(d):
+        return f"{abs(d):.2f} m {'deeper' if d > 0 else 'shallower'}"
+
+    return (f"{head}: {labels[1]} puts it on average {way(mean)} than {labels[0]} (depth difference "
+            f"{mean:+.2f} m, positive deeper; RMS {np.sqrt(np.mean(deeper ** 2)):.2f} m; largest {way(deeper[j])} "
+            f"at x = {x_at:g} m), over the {deeper.size} columns of the spread where both lie above the depth "
             "of investigation")
 
 
@@ -159,7 +171,7 @@ def versus_figure(run, other, contour_m_s=None, labels=LABELS, title=None):
     lx.legend(handles, names, loc="center", ncol=2, frameon=False, fontsize=7.5, columnspacing=1.5)
     bx = fig.add_subplot(gs[2])
     bx.axhline(0.0, color=style.GREY, lw=0.8)
-    d = table["difference_m"]
+    d = -table["difference_m"]  # depth difference: the same ground, so higher is shallower
     ok = table["constrained"]
     bx.plot(x, np.where(ok, d, np.nan), "o-", color=_COLOURS[1], ms=2.8, lw=1.0, mec=style.BLACK, mew=0.3,
             label="both above the depth of investigation")
@@ -170,9 +182,10 @@ def versus_figure(run, other, contour_m_s=None, labels=LABELS, title=None):
     bx.set_xlim(ax.get_xlim())
     bx.set_ylim(-1.2 * lim, 1.2 * lim)
     bx.set_xlabel("Distance along line (m)")
-    bx.set_ylabel("Difference (m)")
+    bx.set_ylabel("Depth difference (m)")
     rms = f"; RMS {np.sqrt(np.mean(d[ok] ** 2)):.2f} m where both are constrained" if ok.any() else ""
-    bx.set_title(f"Dashed minus solid surface (positive: dashed higher){rms}", fontsize=8.5)
+    bx.set_title(f"Depth of the dashed surface minus that of the solid one (positive: dashed deeper){rms}",
+                 fontsize=8.5)
     bx.legend(loc="best", fontsize=7, frameon=False)
     stack_under(fig, ax, lx, bx)
     return fig

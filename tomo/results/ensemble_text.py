@@ -68,10 +68,11 @@ def widest_reason(run, band, j):
     return "; ".join(reasons)
 
 
-def ensemble_html(run, contour_m_s=None, step_m=10.0, esc=lambda s: s):
+def ensemble_html(run, contour_m_s=None, step_m=10.0, esc=lambda s: s, table=True):
     """The report's section on an ensemble: what the members are, the band of the
-    ``contour_m_s`` surface along the line (a depth table with its range), where it is
-    widest and why, and what it is conditional on. '' for a run that is no ensemble."""
+    ``contour_m_s`` surface along the line (a depth table with its range, unless
+    ``table`` is false: the report's depth table carries the band), where it is widest
+    and why, and what it is conditional on. '' for a run that is no ensemble."""
     if run.ensemble is None:
         return ""
     value = default_band_contour(run) if contour_m_s is None else float(contour_m_s)
@@ -83,13 +84,14 @@ def ensemble_html(run, contour_m_s=None, step_m=10.0, esc=lambda s: s):
         j = int(np.argmax(np.where(ok, band.width_m, -np.inf)))
         parts.append(f"<p>{esc(band_text(band))}: {esc(widest_reason(run, band, j))}.</p>")
     rows = []
-    marks = np.arange(np.ceil(band.x[ok].min() / step_m) * step_m, band.x[ok].max() + 1e-9, step_m) if np.any(ok) else []
+    marks = (np.arange(np.ceil(band.x[ok].min() / step_m) * step_m, band.x[ok].max() + 1e-9, step_m)
+             if np.any(ok) else [])
     for x in marks:
         k = int(np.argmin(np.abs(band.x - x)))
         if ok[k]:
             rows.append(f"<tr><td>{band.x[k]:.1f}</td><td>{band.depth_m[k]:.1f}</td><td>{band.depth_low_m[k]:.1f}"
                         f"&ndash;{band.depth_high_m[k]:.1f}</td><td>{band.width_m[k]:.1f}</td></tr>")
-    if rows:
+    if rows and table:
         parts.append(f"<table><thead><tr><th>x (m)</th><th>depth, median (m)</th><th>range, 5-95 % (m)</th>"
                      f"<th>width (m)</th></tr></thead><tbody>{''.join(rows)}</tbody></table>")
     parts.append("<p>The band is what these members allow under the method's assumptions: a smooth 2-D model, "

@@ -5,7 +5,9 @@ Layout (all lengths m, velocities m/s, times ms as named)::
     /                      attrs: format = "tomo-run", format_version, tomo_version,
                                   chi2, rms_ms, iterations, converged, stop_reason,
                                   created (ISO 8601 UTC), settings (JSON), mesh (JSON),
-                                  layered (JSON, optional), notes (JSON list)
+                                  layered (JSON, optional), notes (JSON list),
+                                  picks_digest (SHA-256 of the picks; files
+                                  before it lack it and still read)
     /model/x               (nx)      cell-centre distance
     /model/z               (nz)      cell-centre elevation
     /model/velocity        (nz, nx)  final model, NaN in the air
@@ -33,6 +35,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..analysis.digest import DIGEST_ATTR, picks_digest
 from ..core.errors import InputError
 from ..core.fileio import atomic_path
 from ..core.version import __version__
@@ -70,6 +73,7 @@ def write_run(path, run):
             f.attrs["settings"] = json.dumps(run.settings, default=_jsonable)
             f.attrs["mesh"] = json.dumps(run.mesh, default=_jsonable)
             f.attrs["notes"] = json.dumps(list(run.notes))
+            f.attrs[DIGEST_ATTR] = picks_digest(run.picks)
             if run.layered is not None:
                 f.attrs["layered"] = json.dumps(run.layered, default=_jsonable)
             g = f.create_group("model")
@@ -95,6 +99,12 @@ def write_run(path, run):
                     values = run.history.get(name, [])
                     if len(values) > k:
                         d.parent.attrs[name] = float(values[k])
+
+
+def _text(value):
+    if value is None:
+        return None
+    return value.decode() if isinstance(value, bytes) else str(value)
 
 
 def _jsonable(value):
@@ -158,6 +168,8 @@ def read_run(path, cls=RunData):
                 layered=json.loads(layered) if layered is not None else None,
                 notes=json.loads(f.attrs.get("notes", "[]")),
                 tomo_version=str(f.attrs["tomo_version"]), created=str(f.attrs["created"]),
+                # "" marks a file written before the digest (None: a run made in memory)
+                picks_digest=_text(f.attrs.get(DIGEST_ATTR)) or "",
                 **read_map_groups(f), **read_ensemble_group(f),
             )
         except (KeyError, OSError, ValueError) as exc:

@@ -52,6 +52,9 @@ class RunData:
     ensemble : tomo.uncertainty.record.EnsembleRecord or None
         When the run is the central member of an ensemble: every member's model and
         fit, and what the members say together (``tomo ensemble``).
+    picks_digest : str or None
+        Digest of the picks as read from a run file (:mod:`tomo.analysis.digest`);
+        "" for a run file written before the digest, None for a run in memory.
     """
 
     x: np.ndarray
@@ -78,6 +81,7 @@ class RunData:
     stations: object = None
     boreholes: object = None
     ensemble: object = None
+    picks_digest: str | None = None
 
     @property
     def residual_ms(self):
