@@ -9,7 +9,8 @@ First-arrival picks of a line of geophones in; pick QC, a layered interpretation
     depth_m = run.surface(2100.0).depth_m
 
 Workflow functions (:mod:`tomo.api`): ``read_survey``, ``check_survey``,
-``interpret_layers``, ``read_layers``, ``write_layers``, ``invert``, ``ensemble``, ``read_run``,
+``interpret_layers``, ``read_layers``, ``write_layers``, ``invert``, ``ensemble``,
+``resolve`` (resolution tests), ``design`` (candidate layouts on a model), ``read_run``,
 ``compare_runs``, ``plot_run``, ``write_report``, ``write_grid``, ``write_surface``,
 ``export`` (CSV, netCDF, GeoJSON, DXF), ``add_boreholes``, ``pick_records`` (SEG-2 /
 SEG-Y shot records to picks), ``synthesize``, ``demo_dir``.
@@ -43,6 +44,7 @@ if TYPE_CHECKING:  # type checkers and editors see the lazy names as what they a
         compare_runs,
         default_settings,
         demo_dir,
+        design,
         ensemble,
         export,
         interpret_layers,
@@ -53,6 +55,7 @@ if TYPE_CHECKING:  # type checkers and editors see the lazy names as what they a
         read_project,
         read_run,
         read_survey,
+        resolve,
         synthesize,
         write_grid,
         write_layers,
@@ -71,6 +74,7 @@ _LAZY = {
         "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile",
         "invert", "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface",
         "export", "add_boreholes", "pick_records", "synthesize", "ensemble", "read_project", "check_same_picks",
+        "resolve", "design",
         "default_settings", "demo_dir", "Survey", "Run", "LayeredResult", "InversionSettings")},
     "Surface": "tomo.analysis.surface",
     "velocity_section": "tomo.figures.section",
@@ -86,8 +90,8 @@ __all__ = [
     "__version__", "TomoError", "InputError", "SolverError",
     "read_survey", "check_survey", "interpret_layers", "read_layers", "write_layers", "write_profile", "invert",
     "read_run", "compare_runs", "plot_run", "write_report", "write_grid", "write_surface", "export",
-    "add_boreholes", "pick_records", "synthesize", "ensemble", "read_project", "check_same_picks", "default_settings",
-    "demo_dir",
+    "add_boreholes", "pick_records", "synthesize", "ensemble", "read_project", "check_same_picks", "resolve", "design",
+    "default_settings", "demo_dir",
     "Survey", "Run", "LayeredResult", "InversionSettings", "Surface",
     "velocity_section", "coverage_section", "traveltime_fit", "residual_figure", "misfit_history",
     "layered_vs_gridded", "versus_figure",

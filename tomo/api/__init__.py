@@ -22,9 +22,13 @@ matplotlib when they are asked for, not before.
 
 from __future__ import annotations
 
+from .design import *  # noqa: F403
+from .design import __all__ as _design_all
+from .resolution import *  # noqa: F403
+from .resolution import __all__ as _resolution_all
 from .uncertainty import *  # noqa: F403
 from .uncertainty import __all__ as _uncertainty_all
 from .workflow import *  # noqa: F403
 from .workflow import __all__ as _workflow_all
 
-__all__ = [*_workflow_all, *_uncertainty_all]
+__all__ = [*_workflow_all, *_uncertainty_all, *_resolution_all, *_design_all]

@@ -18,7 +18,8 @@ from ..core.errors import TomoError
 from ..core.version import __version__
 
 #: Subcommands in the order a user meets them, and the module that implements each.
-COMMANDS = ["synth", "pick", "check", "layers", "invert", "ensemble", "plot", "export", "report", "demo"]
+COMMANDS = ["synth", "pick", "check", "layers", "invert", "ensemble", "resolve", "design", "plot", "export", "report",
+            "demo"]
 
 
 def build_parser():

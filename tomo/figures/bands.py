@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..core.errors import InputError
 from ..uncertainty.bands import default_band_contour, surface_band
 from . import style
 
@@ -21,7 +22,10 @@ def draw_band(ax, run, velocity_m_s=None):
     if getattr(run, "ensemble", None) is None:
         return None
     value = default_band_contour(run) if velocity_m_s is None else float(velocity_m_s)
-    band = surface_band(run, value)
+    try:
+        band = surface_band(run, value)
+    except InputError:
+        return None  # the model never reaches that velocity: no surface, no band to draw
     ok = band.constrained & np.isfinite(band.depth_low_m) & np.isfinite(band.depth_high_m)
     top, bottom = band.ground_z - band.depth_low_m, band.ground_z - band.depth_high_m
     ax.fill_between(band.x, np.where(ok, bottom, np.nan), np.where(ok, top, np.nan), color=BAND_COLOR, alpha=0.35,

@@ -10,9 +10,9 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..core.fileio import prepare_folder
-from . import compare, depth, fit, rays, section, style
+from . import compare, depth, fit, rays, resolution, section, style
 
-__all__ = ["FIGURES", "FigureSpec", "make_figures", "plot_run"]
+__all__ = ["FIGURES", "OPTIONAL_FIGURES", "FigureSpec", "make_figures", "plot_run"]
 
 
 @dataclass(frozen=True)
@@ -44,6 +44,14 @@ FIGURES = (
                "chosen iso-velocity contour, and their difference along the line.", compare.layered_vs_gridded),
 )
 
+#: Figures drawn only when the run holds their data, left out silently otherwise.
+OPTIONAL_FIGURES = (
+    FigureSpec("resolution", "Resolution test: a known perturbation added to the final model (true), what the "
+               "inversion of synthetic picks at the same shots, geophones and noise brought back (recovered), and "
+               "the per-cell semblance of the two; hatched cells, here and in the sections, are not resolved.",
+               resolution.resolution_figure),
+)
+
 
 def make_figures(run, skip_note=None, depth_range=None):
     """Draw every run figure.
@@ -54,10 +62,10 @@ def make_figures(run, skip_note=None, depth_range=None):
     (:class:`tomo.analysis.depth_range.DepthRange`) is shaded in the depth figure.
     """
     out = []
-    for spec in FIGURES:
+    for spec in FIGURES + OPTIONAL_FIGURES:
         fig = spec.draw(run, depth_range=depth_range) if spec.name == "depth" else spec.draw(run)
         if fig is None:
-            if skip_note:
+            if skip_note and spec in FIGURES:
                 why = ("holds no layered result to take the refractor's velocity from" if spec.name == "depth"
                        else "holds no layered refractor profile")
                 skip_note(f"skipped the '{spec.name}' figure: the run file {why}")

@@ -24,6 +24,7 @@ from ..analysis.stations import every_nth, geophone_stations
 from . import style
 from .bands import draw_band
 from .boreholes import draw_boreholes, lowest_borehole
+from .hatching import draw_unresolved
 
 __all__ = ["velocity_section", "coverage_section", "contour_levels", "choose_exaggeration", "draw_base",
            "display_cells", "colorbar", "colour_range", "stations", "view_window", "station_axis"]
@@ -99,8 +100,10 @@ def _ground_path(run, x_min, x_max, z_bottom):
     return MplPath(verts, codes), xs, zs
 
 
-def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
-    """Frame a section axis: limits, aspect, pale ground, terrain line, stations, DOI.
+def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None, hatch=True, band_m_s=None):
+    """Frame a section axis: limits, aspect, pale ground, terrain line, stations, DOI,
+    an ensemble's band (of the ``band_m_s`` surface; default: the layered refractor's)
+    and (``hatch``) the cells the run's resolution test did not resolve.
 
     Returns (ground_path_patch, exaggeration) so that images can be clipped to the ground.
     """
@@ -117,7 +120,9 @@ def draw_base(ax, run, vertical_exaggeration=None, doi=True, legend_items=None):
             label="geophones", clip_on=False)
     ax.plot(shots[:, 0], shots[:, 1] + 0.03 * height, zorder=7, label="shots", clip_on=False, **style.shot_style())
     draw_boreholes(ax, run, height)
-    draw_band(ax, run)
+    draw_band(ax, run, band_m_s)
+    if hatch:
+        draw_unresolved(ax, run, clip)
     if doi:
         line = investigation_elevation(run)
         ax.plot(run.x, line, "--", color=DOI_COLOR, lw=1.3, zorder=6,

@@ -22,6 +22,8 @@ Layout (all lengths m, velocities m/s, times ms as named)::
                               (:mod:`tomo.results.runfile_map`)
     /ensemble                 optional: every member of an ensemble whose central run
                               this is (:mod:`tomo.results.runfile_ensemble`)
+    /resolution               optional: a resolution test of the run
+                              (:mod:`tomo.results.runfile_resolution`)
 
 The file is always written whole to a temporary name and renamed, so an interrupted
 run leaves the previous complete file (the last finished iteration), never a torn one.
@@ -42,6 +44,7 @@ from ..core.version import __version__
 from ..tomography.run import RunData
 from .runfile_ensemble import read_ensemble_group, write_ensemble_group
 from .runfile_map import read_map_groups, write_map_groups
+from .runfile_resolution import read_resolution_group, write_resolution_group
 
 __all__ = ["write_run", "read_run", "RunWriter", "FORMAT", "FORMAT_VERSION"]
 
@@ -92,6 +95,7 @@ def write_run(path, run):
                 g[name] = np.asarray(run.history.get(name, []), float)
             write_map_groups(f, run)
             write_ensemble_group(f, run)
+            write_resolution_group(f, run)
             g = f.create_group("iterations")
             for k, model in enumerate(run.iteration_models, start=1):
                 d = g.create_dataset(f"{k:03d}/velocity", data=np.asarray(model, float), **_GZIP)
@@ -170,7 +174,7 @@ def read_run(path, cls=RunData):
                 tomo_version=str(f.attrs["tomo_version"]), created=str(f.attrs["created"]),
                 # "" marks a file written before the digest (None: a run made in memory)
                 picks_digest=_text(f.attrs.get(DIGEST_ATTR)) or "",
-                **read_map_groups(f), **read_ensemble_group(f),
+                **read_map_groups(f), **read_ensemble_group(f), **read_resolution_group(f),
             )
         except (KeyError, OSError, ValueError) as exc:
             raise InputError(f"run file is incomplete or damaged ({exc})", path=path) from None

@@ -55,6 +55,9 @@ class RunData:
     picks_digest : str or None
         Digest of the picks as read from a run file (:mod:`tomo.analysis.digest`);
         "" for a run file written before the digest, None for a run in memory.
+    resolution : tomo.uncertainty.resolution.ResolutionRecord or None
+        A resolution test of the run (``tomo resolve``): true and recovered
+        perturbation and the per-cell recovery score.
     """
 
     x: np.ndarray
@@ -82,6 +85,7 @@ class RunData:
     boreholes: object = None
     ensemble: object = None
     picks_digest: str | None = None
+    resolution: object = None
 
     @property
     def residual_ms(self):
