@@ -14,7 +14,7 @@ import pytest
 from _runs import write_test_run
 from helpers import line_picks
 
-from tomo.api import invert, resolve, resolution_summary
+from tomo.api import invert, resolution_summary, resolve
 from tomo.cli import main
 from tomo.core.errors import InputError
 from tomo.results.run import Run
