@@ -1,7 +1,9 @@
 """Regenerate the README's demo figures in docs/images/ (small PNGs).
 
 Runs ``tomo demo`` into a temporary folder and redraws its figures at a screen
-resolution. Run from the repository root: ``python docs/make_images.py``.
+resolution: every run figure (the depth figure with the range between the two runs),
+the comparison of the two runs, and the pick QC and branch figures. Run from the
+repository root: ``python docs/make_images.py``.
 """
 
 from __future__ import annotations
@@ -10,9 +12,13 @@ import sys
 import tempfile
 from pathlib import Path
 
+import tomo
+from tomo.analysis.depth_range import two_run_range
+from tomo.analysis.surface import refractor_contour
 from tomo.cli.workflow_demo import run_demo
 from tomo.figures import style
 from tomo.figures.bundle import make_figures
+from tomo.figures.curves import branches_figure, qc_figure
 from tomo.figures.versus import run_labels, versus_figure
 from tomo.results.runfile import read_run
 
@@ -27,12 +33,20 @@ def main():
         run = read_run(result.run_file)
         second_path = result.out_dir / "run-gradient.h5"
         second = read_run(second_path)
-        versus = versus_figure(run, second, labels=run_labels(result.run_file, run, second_path, second))
-        for name, fig in [(spec.name, fig) for spec, fig in make_figures(run)] + [("versus", versus)]:
+        labels = run_labels(result.run_file, run, second_path, second)
+        versus = versus_figure(run, second, labels=labels)
+        band = two_run_range(run, second, refractor_contour(run.layered), labels)
+        for name, fig in [(spec.name, fig) for spec, fig in make_figures(run, depth_range=band)] + [("versus", versus)]:
             path = IMAGES / f"demo-{name}.png"
             fig.savefig(path, dpi=DPI, bbox_inches="tight")
             style.plt.close(fig)
             print(f"wrote {path} ({path.stat().st_size // 1024} kB)")
+        # the check and layers figures save themselves: at the same screen resolution
+        style.matplotlib.rcParams["savefig.dpi"] = DPI
+        survey = tomo.read_survey(tomo.demo_dir() / "picks.csv", tomo.demo_dir() / "terrain.csv")
+        qc_figure(survey.picks, tomo.check_survey(survey), IMAGES / "demo-qc.png")
+        branches_figure(tomo.interpret_layers(survey), IMAGES / "demo-branches.png", picks=survey.picks)
+        print(f"wrote {IMAGES / 'demo-qc.png'} and {IMAGES / 'demo-branches.png'}")
         print(f"chi2 {run.chi2:.2f}, RMS {run.rms_ms:.2f} ms, {run.iterations} iterations: {run.stop_reason}")
 
 
