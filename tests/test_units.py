@@ -141,3 +141,15 @@ def test_inversion_refuses_a_start_outside_ground_velocities():
                  sigma_s=p.sigma_s * 1e-3)
     with pytest.raises(InputError, match="outside what near-surface ground gives"):
         tomo.invert(tomo.read_survey(fast, ref.terrain), start="gradient", max_iterations=1)
+
+
+def test_fast_far_velocities_in_metres_get_a_notice(tmp_path):
+    # the demo in feet read with a 2.4 times slower bedrock would pass the checks; a
+    # line whose far apparent velocity exceeds 5500 m/s gets a notice naming feet.
+    # Made here by scaling the demo's positions by 2 (far velocities about 6500 m/s,
+    # direct wave about 900 m/s, spacing 5 m: all plausible in metres)
+    picks = _converted(tmp_path, "stretched.csv", 0.5, 1e-3)
+    survey = tomo.read_survey(picks)
+    notes = [n for n in survey.notices if "declare --distance-unit ft" in n]
+    assert len(notes) == 1 and "fast for near-surface rock" in notes[0]
+    assert not [n for n in tomo.read_survey(DEMO / "picks.csv").notices if "distance-unit" in n]

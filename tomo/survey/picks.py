@@ -29,7 +29,7 @@ import numpy as np
 
 from ..core.errors import InputError
 from ..core.fileio import atomic_open, parse_float, read_csv_rows
-from .units import check_plausible, check_units, pick_scales
+from .units import check_plausible, check_units, pick_scales, unit_notices
 
 __all__ = ["Picks", "read_picks", "write_picks", "check_picks"]
 
@@ -188,8 +188,9 @@ def read_picks(path, terrain=None, layout=False, time_unit="ms", distance_unit="
             k = bad[0]
             raise InputError(f"sigma must be positive, got {s[k]:g} ms", path=path, line=lines[k], field="sigma_ms")
     # before anything is computed from them: are these the numbers of a refraction line?
-    check_plausible(pick_scales(data["source_x"], data["receiver_x"], data.get("time_ms")), path,
-                    time_unit, distance_unit)
+    scales = pick_scales(data["source_x"], data["receiver_x"], data.get("time_ms"))
+    check_plausible(scales, path, time_unit, distance_unit)
+    notices += unit_notices(scales, path, time_unit, distance_unit)
     for c in ("source_x", "receiver_x", "source_z", "receiver_z"):
         if c in data:
             data[c] = data[c] * distance_factor

@@ -33,7 +33,7 @@ import numpy as np
 from ..core.errors import InputError
 
 __all__ = ["TIME_UNITS", "DISTANCE_UNITS", "GROUND_VELOCITY_M_S", "Scales", "pick_scales", "check_plausible",
-           "check_units"]
+           "check_units", "unit_notices"]
 
 #: Time units a pick file may be in: name -> seconds per unit.
 TIME_UNITS = {"ms": 1e-3, "s": 1.0}
@@ -52,6 +52,10 @@ TIME_RANGE_MS = (1.0, 2000.0)
 SPACING_RANGE_M = (0.1, 50.0)
 NEAR_VELOCITY_M_S = (100.0, 6500.0)
 FAR_VELOCITY_M_S = GROUND_VELOCITY_M_S
+#: Far apparent velocities above this (m/s) are possible but rare on engineering lines
+#: (fresh granite, limestone, basalt: 5500-6400 m/s, same notes): worth a notice, since
+#: a line in feet whose rock is 1700-2400 m/s lands there too.
+FAST_NOTICE_M_S = 5500.0
 
 
 @dataclass(frozen=True)
@@ -175,3 +179,15 @@ def check_plausible(scales, path=None, time_unit="ms", distance_unit="m"):
         raise InputError(f"looks like {looks}: {where}; declare {declare}", path=path, field=field)
     raise InputError(f"{where}: not what a refraction line gives in any of the known units; check the "
                      "columns and the units of the file", path=path, field=field)
+
+
+def unit_notices(scales, path=None, time_unit="ms", distance_unit="m"):
+    """Notices for plausible but unusual scales: far apparent velocities above
+    :data:`FAST_NOTICE_M_S` in metres, which feet would give for a slow rock."""
+    time_factor, distance_factor = check_units(time_unit, distance_unit)
+    far = scales.converted(time_factor, distance_factor).far_m_s
+    if distance_unit == "m" and far is not None and far > FAST_NOTICE_M_S:
+        where = f"{path}: " if path else ""
+        return [f"{where}far-offset apparent velocity {far:,.0f} m/s, fast for near-surface rock; if the positions "
+                f"are in feet ({far * DISTANCE_UNITS['ft']:,.0f} m/s in metres), declare --distance-unit ft"]
+    return []
