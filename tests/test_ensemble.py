@@ -32,7 +32,7 @@ from tomo.uncertainty.record import EnsembleRecord
 
 TERRAIN = flat_terrain(-30.0, 80.0)
 MESH = MeshSpec(cell_m=1.0, depth_m=14.0, refine=2)
-FEW = {"max_iterations": 6}
+FEW = {"max_iterations": 6, "bounds": False}
 
 
 @pytest.fixture(scope="module")
@@ -94,7 +94,7 @@ def test_one_and_two_workers_give_identical_members(survey, local):
 def test_a_cluster_given_by_its_address_runs_the_same_members(survey, local):
     from distributed import LocalCluster
 
-    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=":0") as cluster:
         run = ensemble(survey, members=4, seed=3, scheduler=cluster.scheduler_address, start="gradient", mesh=MESH,
                        **FEW)
     np.testing.assert_array_equal(run.ensemble.velocity, local[0].ensemble.velocity)
@@ -163,3 +163,25 @@ def test_the_band_is_the_members_percentiles():
     assert np.all(band.depth_high_m[ok] - band.depth_low_m[ok] > 1.0)  # five surfaces 0.5 m apart
     with pytest.raises(InputError, match="outside the model's range"):
         surface_band(run, 99999.0)
+
+
+def test_an_extremal_bound_brackets_the_central_surface_within_the_tolerance(survey, local):
+    # Most-squares reasoning (Jackson 1976, J. Geophys. Res. 81): every push the bound
+    # accepted fits the picks within chi2_min + 2 sqrt(2/n) (two standard deviations of
+    # the mean chi2 of n picks), the bound lies on the accepted side of the first refused
+    # push, and the central member's depth lies between the shallow and the deep bound.
+    from tomo.uncertainty.bounds import chi2_tolerance
+
+    run = ensemble(survey, members=2, seed=3, workers=1, start="gradient", mesh=MESH, max_iterations=6,
+                   bound_x=[23.0])
+    bounds = run.ensemble.bounds
+    assert [b["x"] for b in bounds][-1] == pytest.approx(23.0, abs=0.5)
+    for b in bounds:
+        assert b["chi2_limit"] == pytest.approx(run.chi2 + chi2_tolerance(len(survey.picks)))
+        assert b["shallow_m"] <= b["central_m"] <= b["deep_m"]
+        for depth, chi2, accepted in b["tests"]:
+            if accepted:
+                assert chi2 <= b["chi2_limit"] and b["shallow_m"] <= depth <= b["deep_m"]
+    band = run.band(1200.0) if bounds[0]["velocity_m_s"] == 1200.0 else run.band(bounds[0]["velocity_m_s"])
+    j = int(np.argmin(np.abs(band.x - bounds[0]["x"])))
+    assert band.depth_low_m[j] <= bounds[0]["shallow_m"] + 1e-9 and band.depth_high_m[j] >= bounds[0]["deep_m"] - 1e-9

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import os
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any, Literal
 
@@ -22,7 +22,9 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
              scheduler: str | None = None, out: PathLike | None = None, resume: bool = False,
              start: Literal["layered", "gradient"] = "layered", layers: LayeredResult | PathLike | None = None,
              mesh: PathLike | MeshSpec | None = None,
-             progress: Callable[[int, int, float, float | None], object] | None = None, **settings: Any) -> Run:
+             progress: Callable[[int, int, float, float | None], object] | None = None, *,
+             bounds: bool = True, bound_x: Sequence[float] = (), contour_m_s: float | None = None,
+             **settings: Any) -> Run:
     """An ensemble of inversions of a survey: the range of models the picks allow.
 
     Members differ in the pick noise, the starting model, the smoothing ratio, the chi2
@@ -48,6 +50,14 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
         Complete the ensemble in ``out`` instead of starting again.
     progress : callable, optional
         ``progress(done, total, elapsed_s, left_s)`` after every member.
+    bounds : bool
+        Also push the surface as deep and as shallow as the picks allow at its deepest and
+        shallowest points and at ``bound_x`` (extremal bounds,
+        :mod:`tomo.uncertainty.bounds`); they widen the band there.
+    bound_x : sequence of float
+        More columns to bound, m along the line.
+    contour_m_s : float, optional
+        Velocity of the bounded surface (default: the layered refractor's contour).
     start, layers, mesh, **settings
         As for :func:`invert`.
     """
@@ -83,11 +93,31 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
             run.write(out)
         return run
 
+    workers = workers or os.cpu_count() or 1
     result = run_ensemble(survey.picks, grid, opts, ens, layers if start == "layered" else None,
-                          (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers or os.cpu_count() or 1, scheduler,
+                          (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers, scheduler,
                           done=member_results(central.ensemble) if central is not None else done,
                           central=central, progress=progress, on_member=keep)
-    return keep(result)
+    run = keep(result)
+    if bounds or bound_x:
+        run = _with_bounds(run, result, survey, grid, opts, contour_m_s, bound_x, workers, scheduler)
+        if out is not None:
+            run.write(out)
+    return run
+
+
+def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, contour_m_s: float | None,
+                 bound_x: Sequence[float], workers: int, scheduler: str | None) -> Run:
+    """``run`` with extremal bounds of its surface (:mod:`tomo.uncertainty.bounds`)."""
+    from ..analysis.surface import check_contour
+    from ..uncertainty.bands import default_band_contour
+    from ..uncertainty.bounds import bound_columns, compute_bounds
+
+    value = check_contour(run, default_band_contour(run) if contour_m_s is None else contour_m_s)
+    xs = bound_columns(run.band(value), bound_x)
+    found = compute_bounds(result.central, survey.picks, grid, opts, value, xs, workers, scheduler)
+    run.ensemble.bounds = [b.to_dict() for b in found]
+    return run
 
 
 def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple, Run | None]:

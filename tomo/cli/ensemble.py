@@ -40,6 +40,14 @@ def register(sub):
                    help="starting model of the central member (the others mix both)")
     p.add_argument("--layers", metavar="layers.json", help="the layered interpretation to start from")
     p.add_argument("--mesh", metavar="MESH.toml", help="mesh spec (default: chosen from the survey)")
+    p.add_argument("--contour", metavar="V", type=float,
+                   help="velocity of the surface whose band is bounded and summarised, m/s (default: the mean of "
+                        "the layer velocities above and below the deepest refractor)")
+    p.add_argument("--bound-x", metavar="X", type=float, action="append", default=[],
+                   help="also push the surface as deep and as shallow as the picks allow at X m (repeatable); "
+                        "its deepest and shallowest points are always bounded")
+    p.add_argument("--no-bounds", action="store_true",
+                   help="skip the extremal bounds (each costs about a dozen inversions)")
     p.add_argument("--sigma-ms", metavar="MS", type=float,
                    help="pick uncertainty where the pick file has no sigma_ms, ms")
     p.set_defaults(run=run)
@@ -68,8 +76,9 @@ def run(args):
     api.check_output_path(args.out)
     run_ = api.ensemble(survey, members=args.members, seed=args.seed, workers=args.workers, scheduler=args.scheduler,
                         out=args.out, resume=args.resume, start=args.start, layers=args.layers, mesh=args.mesh,
-                        progress=_progress("ensemble"), **settings)
-    for line in api.ensemble_summary(run_):
+                        progress=_progress("ensemble"), bounds=not args.no_bounds, bound_x=args.bound_x,
+                        contour_m_s=args.contour, **settings)
+    for line in api.ensemble_summary(run_, args.contour):
         print(line)
     note("The band is what these members allow under the method's assumptions (a smooth 2-D model, first "
          "arrivals with the stated sigmas); it is not a guarantee. Calibrate against boreholes.")

@@ -146,7 +146,8 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     t0 = step(5, "ensemble", f"{DEMO_MEMBERS} inversions of the same picks that differ in what the picks cannot "
                              f"decide (log in {out / 'ensemble.txt'})")
     _cli(["ensemble", picks, "--terrain", terrain, "--layers", str(out / "layers.json"), "--members",
-          str(DEMO_MEMBERS), "--workers", str(workers), "--out", str(ensemble_path)], "ensemble", out / "ensemble.txt")
+          str(DEMO_MEMBERS), "--workers", str(workers), "--no-bounds", "--out", str(ensemble_path)], "ensemble",
+         out / "ensemble.txt")
     timings["ensemble"] = time.perf_counter() - t0
     files += [out / "ensemble.txt", ensemble_path]
     # the ensemble's central member is the run of step 3 (the same picks, start and

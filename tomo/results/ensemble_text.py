@@ -43,6 +43,10 @@ def describe_ensemble(run, contour_m_s=None):
     if record.missing:
         lines.append(f"{len(record.missing)} member(s) not run yet: complete the ensemble with --resume")
     value = default_band_contour(run) if contour_m_s is None else float(contour_m_s)
+    for b in record.bounds:
+        lines.append(f"extremal bound at x = {b['x']:.1f} m: the {b['velocity_m_s']:.0f} m/s surface can lie "
+                     f"{b['shallow_m']:.1f}-{b['deep_m']:.1f} m deep (the central member has {b['central_m']:.1f} m) "
+                     f"with chi2 within {b['chi2_limit']:.2f}")
     lines.append(band_text(run.band(value)))
     return lines
 

@@ -143,7 +143,8 @@ def dask_client(workers=None, scheduler=None):
         except (OSError, TimeoutError, ValueError) as exc:
             raise InputError(f"could not reach the Dask scheduler at {scheduler} within {CONNECT_TIMEOUT_S} s "
                              f"({type(exc).__name__})", field="--scheduler") from None
-    cluster = LocalCluster(n_workers=int(workers), threads_per_worker=1, processes=True, dashboard_address=None)
+    # a free port for the scheduler's HTTP routes, so that clusters side by side do not clash
+    cluster = LocalCluster(n_workers=int(workers), threads_per_worker=1, processes=True, dashboard_address=":0")
     return Client(cluster), cluster
 
 
