@@ -21,6 +21,11 @@ of every line, with a median width at most 25 % of the depth; at the channel axi
 band reaches the true depth.
 
 Run: ``python benchmarks/ensemble.py [channel trough weathered] [--members 32] [--workers 2]``.
+
+``--speed`` runs the demo line's ensemble (32 members, no extremal bounds) on 1 and on 2
+workers instead, and prints the wall times, their ratio and whether the two runs' band
+percentiles are identical. Goals (issue 11): under 2 minutes on this 2-core machine,
+2 workers at least 1.6 times faster than 1, identical percentiles.
 """
 
 from __future__ import annotations
@@ -84,7 +89,34 @@ def score(name, run, model, contour, wall=float("nan"), members=None):
             "mean_error": float(np.mean(np.abs(band.depth_m[under] - true[under])))}
 
 
+def speed(members=32, seed=0):
+    """The demo line's ensemble on 1 and 2 workers: wall times and identical bands."""
+    import os
+
+    from tomo.api import demo_dir
+
+    folder = demo_dir()
+    survey = read_survey(folder / "picks.csv", terrain=folder / "terrain.csv")
+    rows, bands = [], []
+    for workers in (1, 2):
+        t0 = time.perf_counter()
+        run = ensemble(survey, members=members, seed=seed, workers=workers, bounds=False)
+        rows.append((workers, time.perf_counter() - t0, run.ensemble.n_kept))
+        band = run.band(2105.0)
+        bands.append((band.depth_low_m, band.depth_high_m, run.ensemble.velocity))
+    same = all(np.array_equal(a, b, equal_nan=True) for a, b in zip(*bands))
+    load = os.getloadavg()[0]
+    print(f"\ndemo line, {members} members (load average {load:.1f} at the end)")
+    print(f"{'workers':>7} {'wall s':>7} {'kept':>5}")
+    for workers, wall, kept in rows:
+        print(f"{workers:>7} {wall:>7.0f} {kept:>5}")
+    print(f"2 workers {rows[0][1] / rows[1][1]:.2f} times faster than 1; percentiles identical: {same}")
+
+
 def main(argv=None):
+    argv = sys.argv[1:] if argv is None else argv
+    if "--speed" in argv:
+        return speed()
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("lines", nargs="*", default=["channel", "trough", "weathered"])
     parser.add_argument("--members", type=int, default=32)

@@ -185,3 +185,24 @@ def test_an_extremal_bound_brackets_the_central_surface_within_the_tolerance(sur
     band = run.band(1200.0) if bounds[0]["velocity_m_s"] == 1200.0 else run.band(bounds[0]["velocity_m_s"])
     j = int(np.argmin(np.abs(band.x - bounds[0]["x"])))
     assert band.depth_low_m[j] <= bounds[0]["shallow_m"] + 1e-9 and band.depth_high_m[j] >= bounds[0]["deep_m"] - 1e-9
+
+
+def test_the_command_refuses_bad_requests_in_one_line(survey, tmp_path, capsys):
+    from tomo.cli import main
+    from tomo.survey.picks import write_picks
+
+    picks = tmp_path / "picks.csv"
+    write_picks(picks, survey.picks)
+    out = tmp_path / "ens.h5"
+    cases = [(["--members", "1"], "at least 2 members"),
+             (["--scheduler", "tcp://127.0.0.1:9"], "could not reach the Dask scheduler"),
+             (["--workers", "0"], "--workers must be 1 or more")]
+    for extra, message in cases:
+        status = main(["ensemble", str(picks), "--out", str(out), "--start", "gradient", "--no-bounds", *extra])
+        err = capsys.readouterr().err.strip().splitlines()
+        assert status == 2 and message in err[-1] and "Traceback" not in "\n".join(err), (extra, err)
+        assert not out.exists()
+    run = ensemble(survey, members=2, seed=3, workers=1, out=out, start="gradient", mesh=MESH, **FEW)
+    assert main(["export", str(out), "--contour", "99999", "--surface", str(tmp_path / "s.csv")]) == 2
+    assert "outside the model's range" in capsys.readouterr().err
+    assert not (tmp_path / "s.csv").exists() and run.ensemble.n_kept == 2

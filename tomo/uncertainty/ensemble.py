@@ -153,11 +153,12 @@ def _tasks(specs, picks, mesh, settings, layered, gradient, smoothing, predicted
                        gradient, smoothing) for spec in specs]
 
 
-def run_tasks(func, tasks, keys, report, workers=1, scheduler=None):
+def run_tasks(func, tasks, keys, report, workers=1, scheduler=None, client=None):
     """``func(task)`` for every task, in this process (one worker, no scheduler) or as
-    Dask tasks; ``report(key, result, error)`` as each finishes (in any order). A
-    TomoError raised by a task is reported by its message, any other by its type."""
-    if workers <= 1 and not scheduler:
+    Dask tasks (on ``client`` when given, else on a client made for them);
+    ``report(key, result, error)`` as each finishes (in any order). A TomoError raised
+    by a task is reported by its message, any other by its type."""
+    if client is None and workers <= 1 and not scheduler:
         for key, task in zip(keys, tasks):
             try:
                 result = func(task)
@@ -168,7 +169,8 @@ def run_tasks(func, tasks, keys, report, workers=1, scheduler=None):
         return
     from distributed import as_completed
 
-    client, cluster = dask_client(workers, scheduler)
+    own = client is None
+    client, cluster = dask_client(workers, scheduler) if own else (client, None)
     try:
         token = uuid.uuid4().hex[:12]  # keys unique on a shared cluster
         futures = client.map(func, tasks, pure=False, key=[f"tomo-{token}-{k}" for k in keys])
@@ -182,9 +184,10 @@ def run_tasks(func, tasks, keys, report, workers=1, scheduler=None):
                 report(index[future.key], future.result(), None)
             future.release()
     finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
+        if own:
+            client.close()
+            if cluster is not None:
+                cluster.close()
 
 
 def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradient=None, smoothing_cells=2.0,
@@ -250,6 +253,21 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
         if progress is not None:
             progress(count[0], total, elapsed, left)
 
+    # reach the cluster before any work: a wrong address fails at once, with nothing written
+    client, cluster = dask_client(workers, scheduler) if (scheduler or workers > 1) and len(todo) > 1 else (None, None)
+    try:
+        _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client)
+    finally:
+        if client is not None:
+            client.close()
+        if cluster is not None:
+            cluster.close()
+    if ensemble.central is None:
+        raise SolverError("the central member of the ensemble did not finish")
+    return ensemble
+
+
+def _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client):
     if todo and todo[0].index == 0:
         # the central member first, here: its run is the file's, its computed times are
         # what the other members' picks are redrawn around, and a line the inversion
@@ -258,10 +276,7 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
         todo = todo[1:]
     predicted_s = np.asarray(ensemble.central.picks["computed_ms"], float) * 1e-3
     tasks = _tasks(todo, picks, mesh, settings, layered, gradient, smoothing_cells, predicted_s)
-    run_tasks(run_member, tasks, [t.spec.index for t in tasks], report, workers, scheduler)
-    if ensemble.central is None:
-        raise SolverError("the central member of the ensemble did not finish")
-    return ensemble
+    run_tasks(run_member, tasks, [t.spec.index for t in tasks], report, client=client)
 
 
 __all__ += ["MemberResult", "MemberSpec"]
