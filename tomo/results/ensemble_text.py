@@ -9,17 +9,26 @@ from ..uncertainty.bands import default_band_contour
 __all__ = ["describe_ensemble", "band_text", "widest_reason", "ensemble_html"]
 
 
-def band_text(band):
+def _spread(run):
+    """The geophones' span along the line, m: where a band is summarised."""
+    x = np.asarray(run.picks["receiver_x"], float)
+    return float(x.min()), float(x.max())
+
+
+def band_text(band, span=None):
     """One sentence on a band: its median and largest width over the constrained
-    columns, and where it is widest."""
+    columns (within ``span``, (x_min, x_max) m, when given), and where it is widest."""
     ok = band.constrained & np.isfinite(band.width_m)
+    if span is not None:
+        ok &= (band.x >= span[0]) & (band.x <= span[1])
     if not np.any(ok):
         return f"{band.velocity_m_s:.0f} m/s surface: no column lies above the depth of investigation"
     width = np.where(ok, band.width_m, -np.inf)
     j = int(np.argmax(width))
     widened = int(np.sum(band.bounded_by[ok] != "members"))
+    where = "" if span is None else " of the spread"
     text = (f"{band.velocity_m_s:.0f} m/s surface: band (5-95 % of {band.n_members} members) "
-            f"{np.median(band.width_m[ok]):.1f} m wide at the median column, {width[j]:.1f} m at most, at "
+            f"{np.median(band.width_m[ok]):.1f} m wide at the median column{where}, {width[j]:.1f} m at most, at "
             f"x = {band.x[j]:.1f} m ({band.depth_low_m[j]:.1f}-{band.depth_high_m[j]:.1f} m deep)")
     if widened:
         text += f"; extremal bounds widen it at {widened} column(s)"
@@ -47,7 +56,7 @@ def describe_ensemble(run, contour_m_s=None):
         lines.append(f"extremal bound at x = {b['x']:.1f} m: the {b['velocity_m_s']:.0f} m/s surface can lie "
                      f"{b['shallow_m']:.1f}-{b['deep_m']:.1f} m deep (the central member has {b['central_m']:.1f} m) "
                      f"with chi2 within {b['chi2_limit']:.2f}")
-    lines.append(band_text(run.band(value)))
+    lines.append(band_text(run.band(value), _spread(run)))
     return lines
 
 
@@ -81,12 +90,13 @@ def ensemble_html(run, contour_m_s=None, step_m=10.0, esc=lambda s: s, table=Tru
         return ""
     value = default_band_contour(run) if contour_m_s is None else float(contour_m_s)
     band = run.band(value)
-    ok = band.constrained & np.isfinite(band.width_m)
+    span = _spread(run)
+    ok = band.constrained & np.isfinite(band.width_m) & (band.x >= span[0]) & (band.x <= span[1])
     lines = describe_ensemble(run, value)
     parts = [f"<p>{esc(line)}.</p>" for line in lines[:-1]]
     if np.any(ok):
         j = int(np.argmax(np.where(ok, band.width_m, -np.inf)))
-        parts.append(f"<p>{esc(band_text(band))}: {esc(widest_reason(run, band, j))}.</p>")
+        parts.append(f"<p>{esc(band_text(band, span))}: {esc(widest_reason(run, band, j))}.</p>")
     rows = []
     marks = (np.arange(np.ceil(band.x[ok].min() / step_m) * step_m, band.x[ok].max() + 1e-9, step_m)
              if np.any(ok) else [])
