@@ -15,6 +15,9 @@ from .section import station_axis
 
 __all__ = ["depth_figure"]
 
+#: How the legend names each kind of range (:class:`tomo.analysis.depth_range.DepthRange`).
+_RANGE_NAMES = {"ensemble": "ensemble, 5-95 %", "two-runs": "two starting models",
+                "delay-time-sigma": "delay-time 1 sigma"}
 _CONTOUR = style.PALETTE[0]
 _LAYERED = style.PALETTE[1]
 
@@ -66,6 +69,3 @@ def depth_figure(run, depth_range=None, contour_m_s=None):
     ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=2, frameon=False)
     return fig
 
-
-_RANGE_NAMES = {"ensemble": "ensemble, 5-95 %", "two-runs": "two starting models",
-                "delay-time-sigma": "delay-time 1 sigma"}

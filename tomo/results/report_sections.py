@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..core.notices import NOTE, WARNING, group_notices
+from ..core.notices import WARNING, group_notices
 from ..layered.result import layered_result
 from .report_depth import depth_rows
 from .report_html import Raw, esc, no_folders, table
@@ -285,5 +285,3 @@ def misfit_section(run):
                            numeric=(0, 1, 2, 3)))
     return "\n".join(parts)
 
-
-_ = NOTE
