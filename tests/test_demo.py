@@ -32,7 +32,8 @@ def demo_run(tmp_path_factory):
     # the usual umask of a user account: outputs must come out readable by others (0644)
     old = os.umask(0o022)
     try:
-        status = main(["demo", "--out", str(out)])
+        # two ensemble members keep the suite short; the demo's own eight only widen the band
+        status = main(["demo", "--out", str(out), "--members", "2"])
     finally:
         os.umask(old)
     assert status == 0
@@ -183,3 +184,13 @@ def test_demo_report_is_client_ready(demo_run):
     assert str(demo_run) not in readable and str(DEMO) not in readable and "/tmp/" not in readable
     assert "@page { size: A4" in body and "http://" not in body and "https://" not in body
     assert "<script" not in body
+
+
+def test_the_demo_report_and_section_show_the_depth_band(demo_run):
+    # the ensemble step's file is what the figures and report are drawn from
+    from tomo.results.run import Run
+
+    run = Run.read(demo_run / "ensemble.h5")
+    assert run.ensemble is not None and run.ensemble.n_kept == 2
+    text = (demo_run / "report.html").read_text(encoding="utf-8")
+    assert "How sure the depth is" in text and "5-95 %" in text

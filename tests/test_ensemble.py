@@ -133,10 +133,7 @@ def test_a_failing_member_is_reported_and_the_rest_kept(survey, monkeypatch):
 def test_bad_requests(survey):
     with pytest.raises(InputError, match="at least 2 members"):
         EnsembleSettings(members=1).check()
-    t0 = time.perf_counter()
-    with pytest.raises(InputError, match="could not reach the Dask scheduler"):
-        ensemble(survey, members=3, scheduler="tcp://127.0.0.1:9", start="gradient", mesh=MESH, **FEW)
-    assert time.perf_counter() - t0 < 30  # the issue asks for the error within 10 s of trying to connect
+    # an unreachable scheduler: test_the_command_refuses_bad_requests_in_one_line
 
 
 def test_the_band_is_the_members_percentiles():
@@ -199,7 +196,11 @@ def test_the_command_refuses_bad_requests_in_one_line(survey, tmp_path, capsys):
              (["--scheduler", "tcp://127.0.0.1:9"], "could not reach the Dask scheduler"),
              (["--workers", "0"], "--workers must be 1 or more")]
     for extra, message in cases:
+        t0 = time.perf_counter()
         status = main(["ensemble", str(picks), "--out", str(out), "--start", "gradient", "--no-bounds", *extra])
+        # the issue asks for the scheduler's error within 10 s of trying (CONNECT_TIMEOUT_S);
+        # 20 s allows for a loaded machine
+        assert time.perf_counter() - t0 < 20
         err = capsys.readouterr().err.strip().splitlines()
         assert status == 2 and message in err[-1] and "Traceback" not in "\n".join(err), (extra, err)
         assert not out.exists()

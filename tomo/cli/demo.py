@@ -15,6 +15,8 @@ def register(sub):
     p.add_argument("--out", default="tomo-demo", metavar="DIR",
                    help="folder for the outputs (default: ./tomo-demo, created if needed)")
     p.add_argument("--workers", type=int, default=2, help="processes for the inversion (default 2)")
+    p.add_argument("--members", type=int, default=8, metavar="N",
+                   help="members of the demo's ensemble (default 8; a client's report would use 32)")
     p.set_defaults(run=run)
 
 
@@ -24,7 +26,7 @@ def run(args):
 
     if args.workers < 1:
         raise InputError(f"--workers must be >= 1, got {args.workers}")
-    result = run_demo(args.out, progress=note, workers=args.workers)
+    result = run_demo(args.out, progress=note, workers=args.workers, members=args.members)
     total = sum(result.timings.values())
     steps = ", ".join(f"{k} {v:.0f} s" for k, v in result.timings.items())
     print(f"demo finished in {total:.0f} s ({steps}); {len(result.files)} files in {result.out_dir}")

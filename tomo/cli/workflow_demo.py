@@ -83,7 +83,7 @@ def _cli(argv, step, log=None, keep_stderr=False):
                         + (f"; its output is in {log}" if log else ""))
 
 
-def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
+def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS, members=DEMO_MEMBERS):
     """Run check, layers, invert (twice), plot and report on the demo line.
 
     Parameters
@@ -92,6 +92,8 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
         Folder for every output (created if needed).
     progress : callable, optional
         Called with one line of text per step and per inversion iteration.
+    members : int
+        Members of the ensemble step (at least 2).
 
     Returns
     -------
@@ -143,10 +145,10 @@ def run_demo(out_dir="tomo-demo", progress=None, workers=DEMO_WORKERS):
     _say(progress, "       " + api.compare_runs(run, second, labels=labels))
 
     ensemble_path = out / "ensemble.h5"
-    t0 = step(5, "ensemble", f"{DEMO_MEMBERS} inversions of the same picks that differ in what the picks cannot "
+    t0 = step(5, "ensemble", f"{members} inversions of the same picks that differ in what the picks cannot "
                              f"decide (log in {out / 'ensemble.txt'})")
     _cli(["ensemble", picks, "--terrain", terrain, "--layers", str(out / "layers.json"), "--members",
-          str(DEMO_MEMBERS), "--workers", str(workers), "--no-bounds", "--out", str(ensemble_path)], "ensemble",
+          str(members), "--workers", str(workers), "--no-bounds", "--out", str(ensemble_path)], "ensemble",
          out / "ensemble.txt")
     timings["ensemble"] = time.perf_counter() - t0
     files += [out / "ensemble.txt", ensemble_path]
