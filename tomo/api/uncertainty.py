@@ -68,33 +68,34 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     opts = _settings(settings)
     smoothing = _check_start(start, layers, None, None)
     ens = EnsembleSettings(members=members, seed=seed).check()
-    if layers is not None and not isinstance(layers, LayeredResult):
-        layers = read_layers(layers, survey)
+    layered: LayeredResult | None = None
+    if layers is not None:
+        layered = layers if isinstance(layers, LayeredResult) else read_layers(layers, survey)
     terrain, notes = survey.ground()
     grid, spec, _ = _mesh(survey, terrain, mesh)
-    if start == "layered" and layers is None:
+    if start == "layered" and layered is None:
         try:
-            layers = interpret_line(survey.picks, terrain=terrain)
+            layered = interpret_line(survey.picks, terrain=terrain)
         except TomoError as exc:
             notes.append(f"layered starting model not available ({exc}); members start from the gradient")
     fit = fit_gradient(survey.picks)
     done, central = _resumed(out, ens, survey) if resume else ((), None)
-    extra = {"start": "layered" if layers is not None else "gradient", "mesh_spec": spec.as_dict(),
+    extra = {"start": "layered" if layered is not None else "gradient", "mesh_spec": spec.as_dict(),
              "picks_file": survey.picks_path, "terrain_file": survey.terrain_path}
 
-    def keep(result):
+    def keep(result: Any) -> Run:
         run = Run.from_data(result.central)
         run.settings = {**extra, **run.settings}
         run.notes = list(dict.fromkeys(list(survey.notices) + notes + list(run.notes)))
         run.stations, run.ensemble = survey.stations, record_of(result)
-        if layers is not None and start == "layered":
-            run.layered = layers.to_dict()
+        if layered is not None and start == "layered":
+            run.layered = layered.to_dict()
         if out is not None:
             run.write(out)
         return run
 
     workers = workers or os.cpu_count() or 1
-    result = run_ensemble(survey.picks, grid, opts, ens, layers if start == "layered" else None,
+    result = run_ensemble(survey.picks, grid, opts, ens, layered if start == "layered" else None,
                           (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers, scheduler,
                           done=member_results(central.ensemble) if central is not None else done,
                           central=central, progress=progress, on_member=keep)
@@ -120,32 +121,35 @@ def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, co
     value = check_contour(run, default_band_contour(run) if contour_m_s is None else contour_m_s)
     xs = bound_columns(run.band(value), bound_x)
     found = compute_bounds(result.central, survey.picks, grid, opts, value, xs, workers, scheduler)
-    run.ensemble.bounds = [b.to_dict() for b in found]
+    record: Any = run.ensemble
+    record.bounds = [b.to_dict() for b in found]
     return run
 
 
-def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple, Run | None]:
+def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple[Any, ...], Run | None]:
     """The finished members of the ensemble file ``out``, checked against this request."""
-    import numpy as np
+    from ..analysis.digest import picks_digest
 
     if out is None or not Path(out).exists():
         raise InputError("--resume needs the ensemble file of the interrupted run", path=out, field="--resume")
     run = Run.read(out)
-    record = run.ensemble
+    record: Any = run.ensemble
     if record is None:
         raise InputError("not an ensemble file (no /ensemble group)", path=out)
     if (record.settings.members, record.settings.seed) != (ens.members, ens.seed):
         raise InputError(f"the file holds an ensemble of {record.settings.members} members with seed "
                          f"{record.settings.seed}; resume it with the same --members and --seed", path=out)
-    observed = survey.picks.time_s * 1e3
-    if observed.shape != run.picks["observed_ms"].shape or not np.allclose(observed, run.picks["observed_ms"]):
-        raise InputError("the ensemble file holds other picks than these", path=out)
+    if picks_digest(run.picks) != picks_digest(_picks_table(survey)):
+        raise InputError("the ensemble file holds other picks than these (tomo ensemble --resume completes an "
+                         "ensemble of the same picks)", path=out)
     return (), run
 
 
-def ensemble_summary(run: Run, contour_m_s: float | None = None) -> list[str]:
-    """Lines saying what an ensemble holds: members kept, rejected and failed, and the
-    band of the ``contour_m_s`` surface (default: the layered result's deepest refractor)."""
-    from ..results.ensemble_text import describe_ensemble
+def _picks_table(survey: Survey) -> dict[str, Any]:
+    """The survey's picks as a run file stores them (ms), to compare digests."""
+    import numpy as np
 
-    return describe_ensemble(run, contour_m_s)
+    p = survey.picks
+    sigma = p.sigma_s if p.sigma_s is not None else np.full(len(p), np.nan)
+    return {"source_x": p.source_x, "source_z": p.source_z, "receiver_x": p.receiver_x, "receiver_z": p.receiver_z,
+            "observed_ms": np.asarray(p.time_s, float) * 1e3, "sigma_ms": np.asarray(sigma, float) * 1e3}

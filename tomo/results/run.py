@@ -22,6 +22,8 @@ from .runfile import read_run, write_run
 if TYPE_CHECKING:  # xarray is imported only when a dataset is asked for
     import xarray
 
+    from ..uncertainty.bands import SurfaceBand
+
 __all__ = ["Run"]
 
 
@@ -74,7 +76,7 @@ class Run(RunData):
         """
         return contour_surface(self, velocity_m_s)
 
-    def band(self, velocity_m_s: float):
+    def band(self, velocity_m_s: float) -> SurfaceBand:
         """The depth band of the ``velocity_m_s`` surface across the members of an
         ensemble (:func:`tomo.uncertainty.bands.surface_band`): median depth and the 5-95 %
         range per column, m.
