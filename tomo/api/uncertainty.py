@@ -153,3 +153,11 @@ def _picks_table(survey: Survey) -> dict[str, Any]:
     sigma = p.sigma_s if p.sigma_s is not None else np.full(len(p), np.nan)
     return {"source_x": p.source_x, "source_z": p.source_z, "receiver_x": p.receiver_x, "receiver_z": p.receiver_z,
             "observed_ms": np.asarray(p.time_s, float) * 1e3, "sigma_ms": np.asarray(sigma, float) * 1e3}
+
+
+def ensemble_summary(run: Run, contour_m_s: float | None = None) -> list[str]:
+    """Lines saying what an ensemble holds: members kept, rejected and failed, and the
+    band of the ``contour_m_s`` surface (default: the layered result's deepest refractor)."""
+    from ..results.ensemble_text import describe_ensemble
+
+    return describe_ensemble(run, contour_m_s)
