@@ -27,11 +27,7 @@ LONG_FUNCTIONS = {
     # ray tracing of every pick in one loop kept together for speed (inversion's owner)
     ("tomo/tomography/rays.py", "trace_many"),
 }
-LONG_MODULES = {
-    # the inversion loop, split into settings/passes/solver/regularisation/workers,
-    # one line over (inversion's owner)
-    "tomo/tomography/inversion.py",
-}
+LONG_MODULES: set = set()
 
 
 def _module_name(path):

@@ -135,10 +135,7 @@ def layer_velocities(layered):
 def refractor_contour(layered, refractor=None):
     """The iso-velocity (m/s) that stands for a refractor in the tomogram: the mean of
     the layer velocities above and below it (common practice). ``refractor`` counts
-    from 1 (the base of the top layer); the deepest one by default."""
-    v = layer_velocities(layered)
-    if len(v) < 2:
-        return None
-    k = len(v) - 1 if refractor is None else int(refractor)
-    k = min(max(k, 1), len(v) - 1)
-    return 0.5 * (v[k - 1] + v[k])
+    from 1 (the base of the top layer); the deepest one by default
+    (:meth:`tomo.layered.result.LayeredResult.contour_m_s`)."""
+    result = layered_result(layered)
+    return None if result is None else result.contour_m_s(refractor)

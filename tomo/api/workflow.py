@@ -25,14 +25,15 @@ from ..results.layersfile import check_layers_match
 from ..results.layersfile import read_layers as _read_layers_file
 from ..results.layersfile import write_layers as _write_layers_file
 from ..results.run import Run
+from ..survey.boreholes import Boreholes
 from ..survey.geometry import station_spacing
 from ..survey.meshspec import MeshSpec, inversion_mesh_spec, read_mesh_spec
 from ..survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
 from ..survey.units import DISTANCE_UNITS, TIME_UNITS
 from ..tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
-from ..tomography.inversion import invert as _invert
 from ..tomography.mesh import Mesh, mesh_for_picks
 from ..tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
+from .boreholes import grid_boreholes, invert_with_boreholes, place_boreholes, tied_layers
 
 if TYPE_CHECKING:  # imported for the type hints only: both load matplotlib
     from ..analysis.surface import Surface
@@ -106,7 +107,8 @@ def check_survey(survey: Survey, **options: Any) -> QCReport:
     return check_line(survey.picks, **options)
 
 
-def interpret_layers(survey: Survey, **options: Any) -> LayeredResult:
+def interpret_layers(survey: Survey, boreholes: PathLike | Boreholes | None = None,
+                     **options: Any) -> LayeredResult:
     """The layered interpretation of a survey (velocity assumed to increase with depth).
 
     Travel-time branches per shot side, the intercept-time and dipping-layer formulas
@@ -116,11 +118,23 @@ def interpret_layers(survey: Survey, **options: Any) -> LayeredResult:
     :func:`tomo.layered.interpret.interpret_line` (``n_branches``, ``breaks_m``,
     ``sigma_ms``, ...), at the same defaults as ``tomo layers``.
 
+    With ``boreholes`` (a borehole file, :mod:`tomo.survey.boreholes`, or boreholes
+    read), the delay-time refractor is tied to them (:mod:`tomo.layered.ties`): the
+    overburden velocity calibrated to the logged depths (least squares over the
+    boreholes), the mis-tie left at each spread to its neighbours; ``result.ties``
+    says what changed.
+
     Returns
     -------
     LayeredResult
         Layer velocities (m/s) and thicknesses (m), per-shot fits, the delay-time
         profile, warnings and the cautions that go with every layered result.
+
+    Raises
+    ------
+    InputError
+        For bad picks or options, or a borehole beyond the line's ends (naming the
+        borehole file, line and field).
 
     Notes
     -----
@@ -128,7 +142,13 @@ def interpret_layers(survey: Survey, **options: Any) -> LayeredResult:
     own, leaves no trace in the picks and puts the depths below it wrong; velocities
     do not identify rock types; calibrate against boreholes (``result.cautions``).
     """
-    return interpret_line(survey.picks, terrain=survey.terrain, **options)
+    placed = None if boreholes is None else place_boreholes(boreholes, survey)
+    result = interpret_line(survey.picks, terrain=survey.terrain, **options)
+    if placed is not None:
+        from ..layered.ties import tie_to_boreholes
+
+        tie_to_boreholes(result, placed)
+    return result
 
 
 def read_layers(path: PathLike, survey: Survey | None = None) -> LayeredResult:
@@ -236,7 +256,9 @@ def _log_progress(info: IterationInfo) -> None:
 def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
            layers: LayeredResult | PathLike | None = None, mesh: PathLike | MeshSpec | None = None,
            out: PathLike | None = None, progress: Callable[[IterationInfo], object] | None = None, *,
-           branches: int | None = None, start_smoothing: float | None = None, **settings: Any) -> Run:
+           branches: int | None = None, start_smoothing: float | None = None,
+           boreholes: PathLike | Boreholes | None = None, contour_m_s: float | None = None,
+           **settings: Any) -> Run:
     """Travel-time tomography of a survey, to the noise level of its picks.
 
     Regularised Gauss-Newton updates with rays through fast-marching travel times,
@@ -270,6 +292,12 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     start_smoothing : float, optional
         Gaussian smoothing of the layered start, model cells (default
         :data:`START_SMOOTHING_CELLS`; 0 keeps the sharp layers).
+    boreholes, contour_m_s : path or Boreholes, float, optional
+        Boreholes the ``contour_m_s`` surface (m/s; default per borehole the mean of the
+        layer velocities around the refractor it logged) must pass through within their
+        sigma (:mod:`tomo.tomography.constraints`); the run is made without and with
+        them, ``run.borehole_fit`` compares the two and flags what the picks resist
+        (:mod:`tomo.analysis.borehole_fit`); the layered result is tied to them too.
     **settings
         Fields of :class:`InversionSettings` (``max_iterations``, ``default_sigma_ms``,
         ``smooth_x``, ``workers``, ...).
@@ -283,7 +311,8 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     Raises
     ------
     InputError
-        For a bad setting, mesh spec, layers file or starting-model option.
+        For a bad setting, mesh spec, layers file, starting-model option, borehole
+        (beyond the line, below the grid) or contour.
     InversionInterrupted
         On Ctrl-C (a KeyboardInterrupt); ``out`` then holds the last finished iteration.
 
@@ -299,32 +328,42 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     """
     opts = _settings(settings)
     smoothing = _check_start(start, layers, branches, start_smoothing)
-    layers_file = None
-    if layers is not None and not isinstance(layers, LayeredResult):
-        layers_file = str(layers)
-        layers = read_layers(layers, survey)
-    elif layers is not None:
-        check_layers_match(layers, survey.picks)
+    layers, layers_file = _given_layers(layers, survey)
     notes = list(survey.notices)
     terrain, ground_notes = survey.ground()
     notes += ground_notes
     grid, spec, mesh_file = _mesh(survey, terrain, mesh)
+    placed, given = grid_boreholes(survey, grid, boreholes, contour_m_s), layers
+    if placed is not None and start == "layered":
+        layers = tied_layers(survey, terrain, layers, branches, placed, opts.default_sigma_ms)
     velocity, layered, start_used = _start_model(survey, grid, terrain, start, layers, branches, smoothing, notes,
                                                  opts.default_sigma_ms)
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
              "mesh_spec": spec.as_dict(), "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,
              "mesh_file": mesh_file, "stations_file": survey.stations_path}
-    if layers is not None:
+    if given is not None:
         extra["layers_file"] = layers_file
     from ..results.runfile import RunWriter
 
     # the stations are not the inversion's business but go into every run file written
-    checkpoint = None if out is None else RunWriter(out, stations=survey.stations)
-    data = _invert(survey.picks, grid, velocity, opts, progress=progress or _log_progress, checkpoint=checkpoint,
-                   layered=layered, notes=notes, extra_settings=extra)
+    checkpoint = None if out is None else RunWriter(out, stations=survey.stations, boreholes=placed)
+    data = invert_with_boreholes(survey, grid, terrain, velocity, opts, progress or _log_progress, checkpoint,
+                                 layered, notes, extra, placed, contour_m_s)
     data.stations = survey.stations
+    data.boreholes = placed
     return Run.from_data(data)
+
+
+def _given_layers(layers: LayeredResult | PathLike | None,
+                  survey: Survey) -> tuple[LayeredResult | None, str | None]:
+    """The layered result given to :func:`invert` (read when a file) and its file name,
+    checked to be of the survey's picks."""
+    if layers is not None and not isinstance(layers, LayeredResult):
+        return read_layers(layers, survey), str(layers)
+    if layers is not None:
+        check_layers_match(layers, survey.picks)
+    return layers, None
 
 
 def read_run(path: PathLike) -> Run:

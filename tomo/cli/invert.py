@@ -45,6 +45,13 @@ def register(sub):
                    help="Gaussian smoothing of the layered start, in model cells (default "
                         f"{START_SMOOTHING_CELLS:g}, about one station spacing; 0 keeps the sharp layers, "
                         "which the tomography moves poorly)")
+    p.add_argument("--boreholes", metavar="B.csv",
+                   help="boreholes (x or easting,northing, depth_m, optional sigma_m, label, interface) the "
+                        "iso-velocity surface must pass through within their sigma; the run is made without and "
+                        "with them, and a borehole the picks resist is flagged")
+    p.add_argument("--contour", type=float, metavar="V",
+                   help="velocity of the surface the boreholes lie on, m/s (default: the mean of the layer "
+                        "velocities above and below the refractor each logged, the deepest by default)")
     p.add_argument("--out", default="run.h5", metavar="RUN.h5", help="run file to write (default run.h5)")
     g = p.add_argument_group("inversion settings (defaults suit a typical line)")
     g.add_argument("--max-iterations", metavar="N", type=int, help=f"most iterations (default {d.max_iterations})")
@@ -85,7 +92,7 @@ def run(args):
     try:
         result = api.invert(survey, start=args.start, layers=args.layers, mesh=args.mesh, out=args.out,
                             progress=_print_progress, branches=args.branches, start_smoothing=args.start_smoothing,
-                            **settings)
+                            boreholes=args.boreholes, contour_m_s=args.contour, **settings)
     except InversionInterrupted as exc:
         print(f"tomo invert: {exc.message}", file=sys.stderr)
         return 130
@@ -93,6 +100,9 @@ def run(args):
         note(message)
     print(f"wrote {args.out}: {result.iterations} iteration(s), chi2 {result.chi2:.3f}, "
           f"RMS {result.rms_ms:.3f} ms; stopped: {result.stop_reason}")
+    if result.borehole_fit is not None:
+        for line in result.borehole_fit.lines():
+            print(line)
     note("A tomogram is one of many models that fit the picks; velocities do not identify "
          "materials; calibrate against boreholes; designs need review by a licensed professional.")
     if not result.converged:

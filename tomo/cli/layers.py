@@ -23,6 +23,10 @@ def register(sub):
     p.add_argument("picks", metavar="PICKS.csv", help="pick file")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x,z)")
     add_line_options(p)
+    p.add_argument("--boreholes", metavar="B.csv",
+                   help="boreholes (x or easting,northing, depth_m, optional sigma_m, label, interface): the "
+                        "delay-time refractor is tied to them (the overburden velocity calibrated to the logged "
+                        "depths, the mis-tie left at each spread to its neighbours)")
     p.add_argument("--out", metavar="layers.json", help="write the interpretation as JSON")
     p.add_argument("--profile", metavar="refractor.csv",
                    help="write refractor depths per geophone: refractor,x,surface_z,depth_m,elevation_m,"
@@ -131,6 +135,21 @@ class _DefaultDict(dict):
         self.default = default
 
 
+def tie_lines(result):
+    """The borehole ties of a layered result as lines of text (none without boreholes)."""
+    out = []
+    for tie in result.ties:
+        out.append(tie.summary())
+        out.append("  borehole      x (m)  logged (m)  before (m)  velocity only (m)  own velocity (m/s)  in fit")
+        for b in tie.boreholes:
+            before = "-" if not b.tied else f"{b.depth_before_m:.2f}"
+            after = "-" if not b.tied else f"{b.depth_velocity_m:.2f}"
+            own = "-" if math.isnan(b.own_velocity_m_s) else f"{b.own_velocity_m_s:.0f}"
+            out.append(f"  {b.label:<10} {b.x:8.1f}  {b.depth_m:5.1f} ± {b.sigma_m:3.1f}  {before:>10}  {after:>17}  "
+                       f"{own:>18}  {'yes' if b.used else 'no':>6}{'  FLAGGED' if b.flagged else ''}")
+    return out
+
+
 def run(args):
     from .. import api
 
@@ -138,7 +157,7 @@ def run(args):
     survey = read_survey_args(args)
     for message in survey.notices:
         note(message)
-    result = api.interpret_layers(survey, **options)
+    result = api.interpret_layers(survey, boreholes=args.boreholes, **options)
     for message in result.messages:
         note(message.message)
     # outputs first, so that a closed stdout cannot lose them
@@ -175,6 +194,8 @@ def run(args):
         line = result.refractor(j)
         print(f"refractor {j} (delay times): {line.x.size} geophones from {line.x.min():g} to {line.x.max():g} m, "
               f"depth {line.depth_m.min():.2f} to {line.depth_m.max():.2f} m")
+    for line in tie_lines(result):
+        print(line)
     # every notice, grouped: warnings to act on first and numbered, then the notes
     for line in notice_lines(result.warnings):
         print(line)

@@ -48,6 +48,10 @@ HINTS = {
     # the delay-time profile (tomo.layered.delay)
     "minus-time-velocity-rejected": "check the reversed pairs' picks; the line velocity is used",
     "refractor-not-profiled": _MORE_SHOTS,
+    # boreholes (tomo.layered.ties)
+    "borehole-not-tied": "check the borehole's position, depth and interface",
+    "borehole-mis-tie": "check the borehole and the picks; compare the tomogram there",
+    "borehole-deeper-not-tied": "tie the deepest refractor, or interpret again after changing the layers above",
 }
 
 
@@ -78,6 +82,9 @@ TOPICS = {
     "minus-time-velocity-used": "refractor velocity from the minus times",
     "minus-time-velocity-rejected": "minus-time velocity not used",
     "refractor-not-profiled": "refractors without a delay-time profile",
+    "borehole-not-tied": "boreholes the delay-time refractor cannot be tied to",
+    "borehole-mis-tie": "boreholes the calibrated velocity leaves beyond two sigmas",
+    "borehole-deeper-not-tied": "refractors below a tied one left as they were",
 }
 
 #: Codes that are information, not something to act on: what the methods found and how
@@ -88,6 +95,7 @@ TOPICS = {
 NOTE_CODES = frozenset({
     "shot-one-sided", "branch-few-picks", "break-fixed-in-place", "branches-parallel", "branch-bent-by-relief",
     "apparent-velocities-differ", "branches-not-parallel", "hidden-layer-limit", "minus-time-velocity-used",
+    "borehole-deeper-not-tied",
 })
 
 

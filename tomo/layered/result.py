@@ -25,6 +25,7 @@ import numpy as np
 from ..core.notices import notices_from_values
 from .profile import RefractorLine, RefractorProfile
 from .sidefit import SideFit
+from .tieresult import RefractorTie
 
 __all__ = ["LayeredResult", "Layer", "ShotDepths", "ReversedPair", "CAUTIONS", "layered_result", "json_safe",
            "interface_depths"]
@@ -200,6 +201,9 @@ class LayeredResult:
     cautions : list of str
     options : dict
         Settings used.
+    ties : list of RefractorTie
+        Delay-time refractors tied to boreholes (:mod:`tomo.layered.ties`); empty when
+        none were given.
     """
 
     layers: list
@@ -212,11 +216,22 @@ class LayeredResult:
     messages: list = field(default_factory=list)
     cautions: list = field(default_factory=lambda: list(CAUTIONS))
     options: dict = field(default_factory=dict)
+    ties: list = field(default_factory=list)
 
     @property
     def velocities(self):
         """Layer velocities top to bottom, m/s (array)."""
         return np.array([lay.velocity_m_s for lay in self.layers], float)
+
+    def contour_m_s(self, refractor=None):
+        """The iso-velocity (m/s) that stands for refractor ``refractor`` (1: the base of
+        the top layer; default the deepest) in a tomogram: the mean of the layer
+        velocities above and below it (common practice); None with one layer."""
+        v = self.velocities
+        if v.size < 2:
+            return None
+        k = v.size - 1 if refractor is None else min(max(int(refractor), 1), v.size - 1)
+        return float(0.5 * (v[k - 1] + v[k]))
 
     @property
     def thicknesses(self):
@@ -262,6 +277,7 @@ class LayeredResult:
             "options": dict(self.options),
             "notices": {"warnings": [w.to_dict() for w in self.warnings],
                         "messages": [m.to_dict() for m in self.messages]},
+            "borehole_ties": [t.to_dict() for t in self.ties],
         }
 
     @classmethod
@@ -279,6 +295,7 @@ class LayeredResult:
             warnings=notices_from_values(records.get("warnings"), d.get("warnings", [])),
             messages=notices_from_values(records.get("messages"), d.get("messages", [])),
             cautions=list(d.get("cautions", CAUTIONS)), options=dict(d.get("options", {})),
+            ties=[RefractorTie.from_dict(t) for t in d.get("borehole_ties") or []],
         )
 
 

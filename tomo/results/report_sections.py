@@ -7,6 +7,7 @@ import numpy as np
 
 from ..core.notices import WARNING, group_notices
 from ..layered.result import layered_result
+from .report_boreholes import borehole_use_html, used_text
 from .report_depth import depth_rows
 from .report_html import Raw, esc, no_folders, table
 from .report_settings import settings_rows
@@ -262,12 +263,13 @@ def boreholes_section(run):
              else Raw(f'{esc(depth(t.tomogram_depth_m, t.tomogram_error_m))} <span class="flag">below DOI</span>'))
             for t in ties]
     return ("<p>Each logged interface beside the layered delay-time refractor and the tomogram's contour for that "
-            "interface at the borehole (in brackets: minus the logged depth; positive is deeper). The boreholes "
-            "were not used by either interpretation here; a difference larger than the uncertainties calls for a "
-            "look at both the borehole and the picks.</p>"
+            "interface at the borehole (in brackets: minus the logged depth; positive is deeper). "
+            f"{used_text(run)} Where an interpretation was not told about a borehole, a difference larger than "
+            "the uncertainties calls for a look at both the borehole and the picks.</p>"
             + table(["borehole", "x (m)", "off line (m)", "ground (m)", "logged depth (m)", "interface",
                      "layered depth (m)", "contour (m/s)", "tomogram depth (m)"], rows,
-                    numeric=(1, 2, 3, 4, 6, 7, 8)))
+                    numeric=(1, 2, 3, 4, 6, 7, 8))
+            + borehole_use_html(run))
 
 
 def misfit_section(run):

@@ -7,7 +7,9 @@ Layout (all lengths m, velocities m/s, times ms as named)::
                                   created (ISO 8601 UTC), settings (JSON), mesh (JSON),
                                   layered (JSON, optional), notes (JSON list),
                                   picks_digest (SHA-256 of the picks; files
-                                  before it lack it and still read)
+                                  before it lack it and still read),
+                                  borehole_fit (JSON, optional: a run constrained by
+                                  boreholes, tomo.analysis.borehole_fit)
     /model/x               (nx)      cell-centre distance
     /model/z               (nz)      cell-centre elevation
     /model/velocity        (nz, nx)  final model, NaN in the air
@@ -37,10 +39,12 @@ from pathlib import Path
 
 import numpy as np
 
+from ..analysis.borehole_fit import BoreholeFit
 from ..analysis.digest import DIGEST_ATTR, picks_digest
 from ..core.errors import InputError
 from ..core.fileio import atomic_path
 from ..core.version import __version__
+from ..layered.result import json_safe
 from ..tomography.run import RunData
 from .runfile_ensemble import read_ensemble_group, write_ensemble_group
 from .runfile_map import read_map_groups, write_map_groups
@@ -79,6 +83,8 @@ def write_run(path, run):
             f.attrs[DIGEST_ATTR] = picks_digest(run.picks)
             if run.layered is not None:
                 f.attrs["layered"] = json.dumps(run.layered, default=_jsonable)
+            if run.borehole_fit is not None:
+                f.attrs["borehole_fit"] = json.dumps(json_safe(run.borehole_fit.to_dict()))
             g = f.create_group("model")
             g["x"] = np.asarray(run.x, float)
             g["z"] = np.asarray(run.z, float)
@@ -160,6 +166,7 @@ def read_run(path, cls=RunData):
                 for key in sorted(f["iterations"].keys()):
                     models.append(read(f"iterations/{key}/velocity"))
             layered = f.attrs.get("layered")
+            fit = f.attrs.get("borehole_fit")
             run = cls(
                 x=read("model/x"), z=read("model/z"), velocity=read("model/velocity"),
                 coverage=read("model/coverage"), start_velocity=read("model/start_velocity"),
@@ -172,11 +179,12 @@ def read_run(path, cls=RunData):
                 layered=json.loads(layered) if layered is not None else None,
                 notes=json.loads(f.attrs.get("notes", "[]")),
                 tomo_version=str(f.attrs["tomo_version"]), created=str(f.attrs["created"]),
+                borehole_fit=None if fit is None else BoreholeFit.from_dict(json.loads(fit)),
                 # "" marks a file written before the digest (None: a run made in memory)
                 picks_digest=_text(f.attrs.get(DIGEST_ATTR)) or "",
                 **read_map_groups(f), **read_ensemble_group(f), **read_resolution_group(f),
             )
-        except (KeyError, OSError, ValueError) as exc:
+        except (KeyError, OSError, ValueError, TypeError) as exc:
             raise InputError(f"run file is incomplete or damaged ({exc})", path=path) from None
     nz, nx = run.z.size, run.x.size
     if run.velocity.shape != (nz, nx) or run.coverage.shape != (nz, nx):

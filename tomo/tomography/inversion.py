@@ -3,7 +3,7 @@
 The objective (Occam's inversion: Constable, Parker & Constable 1987, Geophysics 52,
 289-300; in two dimensions deGroot-Hedlin & Constable 1990, Geophysics 55)::
 
-    minimise  || R (m - m_r) ||^2 + beta^2 || m - m_r ||^2
+    minimise  || R (m - m_r) ||^2 + beta^2 || m - m_r ||^2 + lam^-2 sum_b (g_b (z_b - z_b(m)) / sigma_b)^2
     subject to chi2(m) = mean(((t_obs - t(m)) / sigma)^2) = chi2_target
 
 m is the model (log-velocity or slowness of the ground cells), t(m) the computed first
@@ -11,7 +11,11 @@ arrivals (fast marching, ``tomo.tomography.forward``), R the anisotropic first-d
 roughness (``tomo.tomography.regularisation``), m_r a reference model (none unless the user
 names one: m_r = 0, so the roughness of the model itself is penalised and nothing of the
 starting model is kept for free) and beta a damping weight (0, off, unless asked for).
-The starting model is only where the iterations begin.
+The starting model is only where the iterations begin. The last term is there only when
+boreholes are given (``points``): z_b(m) the iso-velocity surface at each borehole,
+z_b its logged elevation, sigma_b its uncertainty, g_b a weight raised while the
+surface misses the borehole by more than sigma_b, lam the regularisation weight of the
+iteration (``tomo.tomography.constraints``). The boreholes never count in chi2.
 
 Each iteration linearises t(m) about the current model with the ray matrix
 (``tomo.tomography.passes``) and solves the regularised least-squares problem of
@@ -27,14 +31,14 @@ are clipped to the velocity bounds (projection; common practice).
 
 Stops: at the target, once the last step was the smoothest at the target (a full step of
 a search aimed at the target) or the model's roughness no longer falls by
-``min_improvement``; too little improvement above the target (twice running, or no step
-found); or the maximum number of iterations. ``RunData.stop_reason`` says which.
+``min_improvement``, and no borehole's weight is still rising; too little improvement
+above the target (twice running, or no step found); or the maximum number of
+iterations. ``RunData.stop_reason`` says which.
 """
 
 from __future__ import annotations
 
 import json
-import math
 import time as _time
 from dataclasses import dataclass, field
 
@@ -45,7 +49,9 @@ from threadpoolctl import threadpool_limits
 from ..core.errors import InputError
 from ..core.version import __version__
 from ..survey.units import GROUND_VELOCITY_M_S
+from .constraints import PointPenalty
 from .passes import forward_pass, trace_pass
+from .progress import InversionInterrupted, IterationInfo
 from .regularisation import parameter_bounds, smoothness_operator, to_parameter, to_velocity
 from .run import RunData
 from .settings import InversionSettings
@@ -70,58 +76,6 @@ STOP_MAX = "maximum iterations"
 RATIO_POOR = 0.25
 
 
-@dataclass
-class IterationInfo:
-    """Progress of one iteration (entry 0 is the starting model); ``str()`` is the line."""
-
-    iteration: int
-    max_iterations: int
-    chi2: float
-    rms_ms: float
-    lam: float
-    step: float
-    elapsed_s: float
-    left_s: float | None
-    timing: dict = field(default_factory=dict)
-    solves: list = field(default_factory=list)
-
-    def __str__(self):
-        lam = "-" if not math.isfinite(self.lam) else f"{self.lam:.3g}"
-        left = "" if self.left_s is None else f", about {_duration(self.left_s)} left at most"
-        head = "start" if self.iteration == 0 else f"iteration {self.iteration}/{self.max_iterations}"
-        return (f"{head}: chi2 {self.chi2:.3f}, RMS {self.rms_ms:.3f} ms, lambda {lam}, "
-                f"step {self.step:.2f}{solver_summary(self.solves)}, {_duration(self.elapsed_s)} elapsed{left}")
-
-
-def solver_summary(solves):
-    """``, LSMR 4 solves of 80-140 iterations`` and a warning for any stopped at its limit."""
-    if not solves:
-        return ""
-    its = [s.iterations for s in solves]
-    span = f"{min(its)}" if min(its) == max(its) else f"{min(its)}-{max(its)}"
-    text = f", {len(solves)} solve{'s' if len(solves) > 1 else ''} of {span} solver iterations"
-    limited = sum(s.at_limit for s in solves)
-    if limited:
-        text += f" ({limited} stopped at the iteration limit)"
-    return text
-
-
-def _duration(seconds):
-    seconds = max(float(seconds), 0.0)
-    return f"{seconds:.0f} s" if seconds < 90 else f"{seconds / 60:.1f} min"
-
-
-class InversionInterrupted(KeyboardInterrupt):
-    """Raised when an inversion is interrupted (Ctrl-C); ``run`` is the last finished
-    iteration (also given to the checkpoint when there is one), ``message`` says so."""
-
-    def __init__(self, message, run=None, checkpoint=None):
-        super().__init__(message)
-        self.message = message
-        self.run = run
-        self.checkpoint = checkpoint
-
-
 # --- the problem, fixed for the whole run ---------------------------------------------
 
 @dataclass
@@ -141,6 +95,7 @@ class Problem:
     notes: list
     recorded: dict
     layered: dict | None = None
+    points: object = None  # ContourPoints the surfaces must pass through (tomo.tomography.constraints)
 
     @property
     def weight(self):
@@ -222,7 +177,7 @@ def _velocity_bounds(mesh, start_velocity, settings):
 
 
 def build_problem(picks, mesh, start_velocity, settings, reference_velocity=None, notes=None,
-                  extra_settings=None, layered=None):
+                  extra_settings=None, layered=None, points=None):
     """Check the inputs and set up the :class:`Problem` of a run (see :func:`invert`)."""
     settings = (settings or InversionSettings()).check()
     v_min, v_max = _check_inputs(picks, mesh, start_velocity, settings)
@@ -252,7 +207,8 @@ def build_problem(picks, mesh, start_velocity, settings, reference_velocity=None
     recorded.update(extra_settings or {})
     return Problem(picks, mesh, settings, np.asarray(picks.time_s, float), sigma,
                    smoothness_operator(mesh, settings.smooth_x, settings.smooth_z),
-                   to_parameter(start[ground], par), m_ref, (lo, hi), start, notes, recorded, layered)
+                   to_parameter(start[ground], par), m_ref, (lo, hi), start, notes, recorded, layered,
+                   None if points is None or not len(points) else points.check(mesh))
 
 
 # --- the state of a run --------------------------------------------------------------
@@ -272,6 +228,8 @@ class State:
     timing: dict = field(default_factory=dict)
     stalled: int = 0
     last_step: float = 1.0
+    penalty: object = None  # PointPenalty of the borehole rows, when there are any
+    pending: bool = False  # a borehole row's weight was just raised: the run goes on
 
 
 def _rms_ms(r):
@@ -308,8 +266,9 @@ def linear_problem(problem, state):
     s = problem.settings
     J = state.res.matrix @ sp.diags(-np.exp(-state.m)) if s.parameter == "logv" else state.res.matrix
     A = sp.diags(problem.weight) @ J
+    rows = None if state.penalty is None else state.penalty.rows(problem.mesh, state.m, s.parameter)
     return LinearProblem(A, problem.weight * state.r, problem.R, state.m - problem.m_ref, s.damping,
-                         s.solver_tol, s.solver, s.solver_iterations)
+                         s.solver_tol, s.solver, s.solver_iterations, constraints=rows)
 
 
 def choose_update(problem, state, linear):
@@ -336,8 +295,8 @@ def line_search(problem, state, evaluate, u, linear, lam):
     """The step along ``u`` to take, as (m, pass, residual, chi2, step), or None.
 
     The merit is the objective the update minimises at this weight, Phi(m) = n chi2(m)
-    + lam^2 ||R (m - m_r)||^2 (+ damping). A step is taken when the true Phi falls by at
-    least :data:`RATIO_POOR` of the fall the linearised problem predicts for it
+    + lam^2 ||R (m - m_r)||^2 (+ damping, + the boreholes' term). A step is taken when
+    the true Phi falls by at least :data:`RATIO_POOR` of the fall the linearised problem predicts for it
     (sufficient decrease against the Gauss-Newton model, as a trust region accepts a
     step; Nocedal & Wright 2006, sec. 4.1); otherwise it is shortened to the minimum of
     a parabola through Phi(0), its slope at 0 and Phi at the trial (sec. 3.5), at most
@@ -350,7 +309,7 @@ def line_search(problem, state, evaluate, u, linear, lam):
     n = len(state.r)
 
     def merit(m, chi2):
-        return n * chi2 + lam ** 2 * problem.roughness(m)
+        return n * chi2 + lam ** 2 * problem.roughness(m) + linear.constraint_misfit_at(m)
 
     phi0 = merit(state.m, state.chi2)
     slope0 = linear.objective_slope(u, lam)
@@ -431,6 +390,12 @@ def iterate(problem, state, evaluate):
     step = Step(list(linear.solves), info.lam, alpha, aim, final, info.predicted_chi2, rough_before,
                 problem.roughness(m))
     state.m, state.res, state.r, state.last_step = m, res, r, alpha
+    if state.penalty is not None:
+        # a borehole's weight grows only once the update aims at the target (before
+        # that the model has not grown the structure the borehole is read in); the
+        # picks may fit worse while it grows: no stall then
+        state.pending = final and state.penalty.raise_missed(problem.mesh, m, settings.parameter)
+        slow = slow and not state.pending
     state.stalled = state.stalled + 1 if slow else 0
     state.chi2 = chi2
     return step
@@ -446,7 +411,7 @@ def stop_reason(problem, state, step, k):
         smoothest = step.final and step.alpha >= 0.9
         settled = step.rough_before > 0 and abs(step.rough_before - step.rough_after) / step.rough_before \
             < s.min_improvement
-        if smoothest or settled:
+        if (smoothest or settled) and not state.pending:
             return STOP_TARGET, True
     elif state.chi2 > s.chi2_target and state.stalled >= 2:
         return STOP_STALLED, False
@@ -509,7 +474,7 @@ def _record(problem, state, step):
 # --- the run ----------------------------------------------------------------------------
 
 def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint=None, layered=None,
-           notes=None, extra_settings=None, reference_velocity=None):
+           notes=None, extra_settings=None, reference_velocity=None, points=None):
     """Invert first-arrival picks for a gridded velocity model (see module docstring).
 
     Parameters
@@ -538,13 +503,17 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint
         More entries for the recorded settings (start kind, mesh spec, files).
     reference_velocity : ndarray (nz, nx), optional
         Reference model m_r of the objective, m/s (default: none).
+    points : ContourPoints, optional
+        Borehole depths the iso-velocity surfaces must pass through
+        (:mod:`tomo.tomography.constraints`): extra weighted rows of every update,
+        outside the picks' chi2.
 
     Returns
     -------
     RunData
     """
     problem = build_problem(picks, mesh, start_velocity, settings, reference_velocity, notes, extra_settings,
-                            layered)
+                            layered, points)
     s = problem.settings
     # one BLAS thread: the solver's vectors are short, and BLAS threads competing for
     # the cores with the worker processes made the solves 15 times slower (measured on
@@ -559,7 +528,8 @@ def _run(problem, workers, progress, checkpoint):
     timing = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "passes": 0, "pass_wall_s": 0.0}
     evaluate = _Evaluator(problem, workers, timing)
     res, r, chi2 = evaluate(problem.m_start, rays=True)
-    state = State(problem.m_start.copy(), res, r, chi2, timing=timing)
+    state = State(problem.m_start.copy(), res, r, chi2, timing=timing,
+                  penalty=None if problem.points is None else PointPenalty(problem.points))
     _record(problem, state, None)
     last = {"run": None}
 
@@ -584,7 +554,7 @@ def _run(problem, workers, progress, checkpoint):
         start_s = _time.perf_counter() - t_begin
         report(0, None, start_s)
         stop, converged, k = None, False, 0
-        if chi2 <= s.chi2_target + s.chi2_tolerance:
+        if chi2 <= s.chi2_target + s.chi2_tolerance and not _points_missed(problem, state):
             stop, converged = STOP_TARGET, True  # the starting model already fits
         elif s.max_iterations == 0:
             stop = STOP_MAX
@@ -605,6 +575,12 @@ def _run(problem, workers, progress, checkpoint):
         raise _interrupted(last["run"], checkpoint, s) from None
     run.timing = dict(timing, total_s=_time.perf_counter() - t_begin)
     return run
+
+
+def _points_missed(problem, state):
+    """Some borehole missed by more than its sigma (false without boreholes)."""
+    return state.penalty is not None and bool(state.penalty.missed(problem.mesh, state.m,
+                                                                   problem.settings.parameter).any())
 
 
 def _interrupted(last, checkpoint, settings):

@@ -58,6 +58,9 @@ class RunData:
     resolution : tomo.uncertainty.resolution.ResolutionRecord or None
         A resolution test of the run (``tomo resolve``): true and recovered
         perturbation and the per-cell recovery score.
+    borehole_fit : tomo.analysis.borehole_fit.BoreholeFit or None
+        For a run constrained by its boreholes: each one's contour depth without and
+        with the constraints, and the flags; None for a run without them.
     """
 
     x: np.ndarray
@@ -86,6 +89,7 @@ class RunData:
     ensemble: object = None
     picks_digest: str | None = None
     resolution: object = None
+    borehole_fit: object = None
 
     @property
     def residual_ms(self):

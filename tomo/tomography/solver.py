@@ -7,7 +7,10 @@ diag(1/sigma)) and the weighted residual b = W (t_obs - t(m)), the update u solv
     minimise  || b - A u ||^2 + lam^2 ( || R (m + u - m_r) ||^2 + beta^2 || m + u - m_r ||^2 )
 
 (R the roughness operator, m_r the reference model, zero unless the user names one,
-beta the damping weight, 0 unless asked for). It is solved as one stacked sparse
+beta the damping weight, 0 unless asked for). Points an iso-velocity surface must pass
+through (boreholes, :mod:`tomo.tomography.constraints`) add weighted rows C u = d beside
+the picks' rows, the term || d - C u ||^2 in the objective; they count in the objective
+but never in the picks' chi2 below. It is solved as one stacked sparse
 least-squares system with scipy's LSMR (Fong & Saunders 2011, SIAM J. Sci. Comput. 33)
 or LSQR (Paige & Saunders 1982, ACM TOMS 8) after scaling every column to unit length,
 the diagonal preconditioning that makes their convergence independent of how the cells
@@ -17,8 +20,8 @@ code is kept for every solve.
 
 The weight lam is chosen by the discrepancy principle on the linearised problem (Occam's
 inversion: Constable, Parker & Constable 1987, Geophysics 52, 289-300; Hansen 1992, SIAM
-Rev. 34 on choosing the weight): the predicted chi2(lam) = mean((b - A u(lam))^2) rises
-with lam, and the search finds the largest lam whose prediction reaches the aim (the
+Rev. 34 on choosing the weight): the predicted chi2(lam) = mean((b - A u(lam))^2) of the
+pick rows alone rises with lam, and the search finds the largest lam whose prediction reaches the aim (the
 target, or the fall of chi2 one step is trusted with). Where even the smallest lam
 searched cannot reach the aim, the one with the least predicted misfit is taken, as
 Occam does.
@@ -105,30 +108,41 @@ class LinearProblem:
     solver : {"lsmr", "lsqr"}
     max_iterations : int or None
         Solver iteration limit (None: :func:`iteration_limit`).
+    constraints : ConstraintRows, optional
+        Weighted rows C u = d of points the model must honour
+        (:class:`tomo.tomography.constraints.ConstraintRows`); data-like rows, weight 1
+        at every lam, outside the picks' chi2.
     """
 
-    def __init__(self, A, b, R, rough_from, damping=0.0, tol=1e-6, solver="lsmr", max_iterations=None):
+    def __init__(self, A, b, R, rough_from, damping=0.0, tol=1e-6, solver="lsmr", max_iterations=None,
+                 constraints=None):
         self.A, self.b, self.R = sp.csr_matrix(A), np.asarray(b, float), sp.csr_matrix(R)
         self.rough_from = np.asarray(rough_from, float)
         self.damping, self.tol, self.solver = float(damping), float(tol), solver
         n = self.A.shape[1]
-        blocks = [self.A, self.R] + ([sp.identity(n, format="csr") * self.damping] if self.damping > 0 else [])
+        self.constraints = constraints
+        self.C = sp.csr_matrix((0, n)) if constraints is None else sp.csr_matrix(constraints.C)
+        self.d = np.zeros(0) if constraints is None else np.asarray(constraints.d, float)
+        blocks = [self.A, self.C, self.R] + ([sp.identity(n, format="csr") * self.damping] if self.damping > 0 else [])
         # the stacked matrix is built once; each weight only rescales its rows and columns
         self._K = sp.vstack(blocks).tocsr()
         self._KT = self._K.T.tocsr()
-        self._n_data = self.A.shape[0]
+        self._n_data = self.A.shape[0] + self.C.shape[0]
         self.max_iterations = max_iterations or iteration_limit(self._K.shape[0], n)
         # squared column norms of the blocks: the scaling for any lam follows from them
-        self._col_a = np.asarray(self.A.multiply(self.A).sum(axis=0)).ravel()
+        col_picks = np.asarray(self.A.multiply(self.A).sum(axis=0)).ravel()
+        self._norm_a = math.sqrt(float(col_picks.sum()))
+        self._col_a = col_picks + np.asarray(self.C.multiply(self.C).sum(axis=0)).ravel()
         self._col_r = np.asarray(self.R.multiply(self.R).sum(axis=0)).ravel()
         self._rhs_reg = -np.concatenate([self.R @ self.rough_from] +
                                         ([self.damping * self.rough_from] if self.damping > 0 else []))
         self.solves = []
 
     def natural_weight(self):
-        """||A||_F / ||R||_F: the weight at which both terms carry equal weight."""
+        """||A||_F / ||R||_F (the picks' rows alone): the weight at which both terms carry
+        equal weight."""
         norm_r = math.sqrt(float(self._col_r.sum()) + self.damping ** 2 * self.A.shape[1])
-        return math.sqrt(float(self._col_a.sum())) / max(norm_r, 1e-300)
+        return self._norm_a / max(norm_r, 1e-300)
 
     def _operator(self, lam):
         """The stacked system at weight lam with unit columns, as a LinearOperator."""
@@ -146,7 +160,7 @@ class LinearProblem:
         """The update u (parameter units) for weight ``lam`` and its :class:`SolveInfo`."""
         op, scale = self._operator(lam)
         y0 = None if x0 is None else np.asarray(x0, float) * scale
-        rhs = np.concatenate([self.b, lam * self._rhs_reg])
+        rhs = np.concatenate([self.b, self.d, lam * self._rhs_reg])
         if self.solver == "lsmr":
             out = lsmr(op, rhs, atol=self.tol, btol=self.tol, maxiter=self.max_iterations, x0=y0)
         else:
@@ -160,16 +174,27 @@ class LinearProblem:
 
     def objective(self, u, lam):
         """The linearised objective after the update u at weight lam:
-        ||b - A u||^2 + lam^2 (||R (m + u - m_r)||^2 + beta^2 ||m + u - m_r||^2)."""
+        ||b - A u||^2 + ||d - C u||^2 + lam^2 (||R (m + u - m_r)||^2 + beta^2 ||m + u - m_r||^2)."""
         d = self.rough_from + u
         reg = float(np.sum((self.R @ d) ** 2)) + self.damping ** 2 * float(np.sum(d ** 2))
-        return float(np.sum((self.b - self.A @ u) ** 2)) + lam ** 2 * reg
+        return float(np.sum((self.b - self.A @ u) ** 2)) + self.constraint_misfit(u) + lam ** 2 * reg
 
     def objective_slope(self, u, lam):
         """d/dalpha of :meth:`objective` (alpha u) at alpha = 0."""
         d = self.rough_from
         reg = float(np.sum((self.R @ d) * (self.R @ u))) + self.damping ** 2 * float(np.sum(d * u))
-        return -2.0 * float(np.sum(self.b * (self.A @ u))) + 2.0 * lam ** 2 * reg
+        data = float(np.sum(self.b * (self.A @ u))) + float(np.sum(self.d * (self.C @ u)))
+        return -2.0 * data + 2.0 * lam ** 2 * reg
+
+    def constraint_misfit_at(self, m):
+        """The constraint rows' misfit at the model ``m`` itself (not linearised; the
+        rows' own ``misfit_at``); 0 without constraints."""
+        return 0.0 if self.constraints is None else self.constraints.misfit_at(m)
+
+    def constraint_misfit(self, u):
+        """||d - C u||^2: the constraint rows' misfit after the update u (exact: the rows
+        are linear in the model); 0 without constraints."""
+        return float(np.sum((self.d - self.C @ u) ** 2)) if self.d.size else 0.0
 
     def predicted_chi2(self, u):
         """Linearised chi2 after the update: mean((b - A u)^2)."""
