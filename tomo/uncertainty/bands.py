@@ -31,6 +31,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..analysis.surface import contour_surface, layer_velocities, refractor_contour
+from ..core.errors import InputError
 
 __all__ = ["SurfaceBand", "surface_band", "contour_spread", "member_contours", "default_band_contour",
            "BOUND_REACH_CELLS"]
@@ -114,8 +115,7 @@ def surface_band(run, velocity_m_s, percentiles=(5.0, 95.0)):
     kept = record.velocity[record.kept]
     lo_v, hi_v = contour_spread(run, central.velocity_m_s)
     values = member_contours(record.index[record.kept], lo_v, hi_v)
-    depths = np.array([contour_surface(replace(run, velocity=v, ensemble=None), c).depth_m
-                       for v, c in zip(kept, values)])
+    depths = np.array([_member_depths(run, v, c) for v, c in zip(kept, values)])
     # a member whose column never reaches the velocity puts the surface below the grid:
     # count it at the grid's bottom, so the deep edge is not understated
     counted = np.where(np.isfinite(depths), depths, _bottom_depth(run)[None, :])
@@ -126,6 +126,16 @@ def surface_band(run, velocity_m_s, percentiles=(5.0, 95.0)):
     low, high = _widen(run, velocity_m_s, central.x, low, high, bounded_by)
     return SurfaceBand(float(central.velocity_m_s), central.x, central.ground_z, mid, low, high,
                        central.ground_z - mid, central.constrained, bounded_by, int(kept.shape[0]), depths)
+
+
+def _member_depths(run, velocity, value):
+    """One member's ``value`` surface, depth per column (m); all NaN for a member whose
+    whole model misses the velocity (a line that sees no refractor can give a uniform
+    member)."""
+    try:
+        return contour_surface(replace(run, velocity=velocity, ensemble=None), value).depth_m
+    except InputError:
+        return np.full(np.asarray(run.x).size, np.nan)
 
 
 def contour_spread(run, velocity_m_s):
