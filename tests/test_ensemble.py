@@ -167,7 +167,6 @@ def test_an_extremal_bound_brackets_the_central_surface_within_the_tolerance(sur
     # accepted fits the picks within chi2_min + 2 sqrt(2/n) (two standard deviations of
     # the mean chi2 of n picks), the bound lies on the accepted side of the first refused
     # push, and the central member's depth lies between the shallow and the deep bound.
-    pytest.importorskip("tomo.tomography.constraints", reason="point constraints land with the borehole work")
     from tomo.uncertainty.bounds import chi2_tolerance
 
     run = ensemble(survey, members=2, seed=3, workers=1, start="gradient", mesh=MESH, max_iterations=6,

@@ -100,10 +100,6 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
                           done=member_results(central.ensemble) if central is not None else done,
                           central=central, progress=progress, on_member=keep)
     run = keep(result)
-    from importlib.util import find_spec
-
-    if find_spec("tomo.tomography.constraints") is None:  # until the point constraints land
-        bounds, bound_x = False, ()
     if bounds or bound_x:
         run = _with_bounds(run, result, survey, grid, opts, contour_m_s, bound_x, workers, scheduler)
         if out is not None:

@@ -27,6 +27,7 @@ from dataclasses import asdict, dataclass, field, replace
 import numpy as np
 
 from ..analysis.surface import contour_surface
+from ..tomography.constraints import ContourPoints
 from ..tomography.inversion import invert
 
 __all__ = ["BoundTask", "ExtremalBound", "bound_columns", "extremal_bound", "compute_bounds", "chi2_tolerance",
@@ -93,8 +94,6 @@ def bound_columns(surface, extra_x=()):
 
 def _push(task, depth):
     """chi2 of the picks with the surface held at ``depth`` (m) under ``task.x``."""
-    from ..tomography.constraints import ContourPoints
-
     mesh = task.mesh
     ground = float(mesh.terrain.elevation(task.x, extrapolate=True))
     points = ContourPoints(np.array([task.x]), np.array([ground - depth]), np.array([mesh.cell / 4.0]),
