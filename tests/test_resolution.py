@@ -154,10 +154,10 @@ def test_the_run_file_keeps_the_test_and_old_files_read_without_one(run, tmp_pat
     assert Run.read(tmp_path / "old.h5").resolution is None
 
 
-def test_sections_hatch_what_is_not_resolved(run):
+def test_sections_hatch_what_is_not_resolved_and_the_report_shows_the_test(run, tmp_path):
     import matplotlib.pyplot as plt
 
-    from tomo.figures.bundle import make_figures
+    from tomo.api import write_report
     from tomo.figures.section import velocity_section
 
     tested = resolve(run, checker_m=4.0, seed=0, workers=1)
@@ -165,8 +165,11 @@ def test_sections_hatch_what_is_not_resolved(run):
     labels = fig.axes[0].get_legend().get_texts()
     assert any("not resolved (checker 4 m" in t.get_text() for t in labels)
     plt.close(fig)
-    names = [spec.name for spec, f in make_figures(tested)]
-    assert "resolution" in names and "resolution" not in [spec.name for spec, f in make_figures(run)]
+    html = write_report(tested, tmp_path / "tested.html").read_text(encoding="utf-8")
+    assert 'id="fig-resolution"' in html
+    from tomo.figures.resolution import resolution_figure
+
+    assert resolution_figure(run) is None  # a run without a test: no such figure, no hatching
     plt.close("all")
 
 

@@ -10,6 +10,7 @@ from pathlib import Path
 from ..core.errors import InputError
 from ..results.run import Run
 from ..tomography.inversion import IterationInfo
+from ..tomography.run import RunData
 from ..uncertainty.resolution import DEFAULT_AMPLITUDE_PCT, MAX_AMPLITUDE_PCT, SEMBLANCE_THRESHOLD
 from .workflow import PathLike
 
@@ -17,7 +18,7 @@ __all__ = ["resolve", "resolution_summary", "plot_resolution", "DEFAULT_AMPLITUD
            "SEMBLANCE_THRESHOLD"]
 
 
-def resolve(run: Run | PathLike, checker_m: float | None = None, amplitude_pct: float = DEFAULT_AMPLITUDE_PCT,
+def resolve(run: RunData | PathLike, checker_m: float | None = None, amplitude_pct: float = DEFAULT_AMPLITUDE_PCT,
             target: PathLike | None = None, seed: int = 0, window_m: float | None = None,
             workers: int | None = None, out: PathLike | None = None,
             progress: Callable[[IterationInfo], object] | None = None) -> Run:
@@ -29,7 +30,7 @@ def resolve(run: Run | PathLike, checker_m: float | None = None, amplitude_pct: 
 
     Parameters
     ----------
-    run : Run or path
+    run : Run, RunData or path
         The run (or run file) to test.
     checker_m : float, optional
         Side of the checker squares, m: at least a model cell, at most the line.
@@ -81,8 +82,7 @@ def resolve(run: Run | PathLike, checker_m: float | None = None, amplitude_pct: 
 
     if (checker_m is None) == (target is None):
         raise InputError("give either a checker size or a target model (not both, not neither)", field="--checker")
-    if not isinstance(run, Run):
-        run = Run.read(run)
+    run = Run.from_data(run) if isinstance(run, RunData) else Run.read(run)
     mesh, picks = run_mesh(run), run_picks(run)
     if target is None:
         check_checker(float(checker_m), float(amplitude_pct), mesh, picks)

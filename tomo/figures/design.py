@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import textwrap
+
 import numpy as np
 
 from ..analysis.coverage import covered
 from . import style
+from .bands import BAND_COLOR
 from .section import colorbar, display_cells, draw_base, view_window
 
 __all__ = ["design_figure", "TARGET_COLOR"]
@@ -36,6 +39,9 @@ def _panel(fig, ax, layout, result, window, vmin, vmax):
     ground = np.interp(layout.x, run.terrain_x, run.terrain_z)
     target = ground - layout.depth_true_m
     ax.plot(layout.x, target, "--", color=TARGET_COLOR, lw=1.4, zorder=6, label="target in the model")
+    # the band's edges as lines too: where it is wide, the shading alone is easy to miss
+    for edge in (layout.band_low_m, layout.band_high_m):
+        ax.plot(layout.x, ground - edge, ":", color=BAND_COLOR, lw=1.0, zorder=5)
     missed = np.where(layout.resolved, np.nan, target)
     ax.plot(layout.x, missed, "-", color=MISSED_COLOR, lw=3.0, alpha=0.8, zorder=5,
             label=f"not resolved within {result.tolerance_m:g} m")
@@ -43,8 +49,9 @@ def _panel(fig, ax, layout, result, window, vmin, vmax):
     ax.set_xlim(x_min, x_max)
     ax.set_ylim(z_min, z_max)
     verdict = "resolves the target" if layout.resolves else "does not resolve the target"
-    ax.set_title(f"{layout.name}: {layout.n_shots} shots x {layout.n_geophones} geophones, "
-                 f"{100 * layout.resolved_share:.0f} % resolved: {verdict}", fontsize=9)
+    detail = textwrap.fill(layout.reason or f"{100 * layout.resolved_share:.0f} % of the region resolved", 110)
+    ax.set_title(f"{layout.name}: {layout.n_shots} shots x {layout.n_geophones} geophones: {verdict}\n{detail}",
+                 fontsize=8.5)
     return image
 
 
