@@ -48,7 +48,7 @@ FIGURES = (
 OPTIONAL_FIGURES = (
     FigureSpec("resolution", "Resolution test: a known perturbation added to the final model (true), what the "
                "inversion of synthetic picks at the same shots, geophones and noise brought back (recovered), and "
-               "the per-cell semblance of the two; hatched cells, here and in the sections, are not resolved.",
+               "the per-cell semblance of the two; stippled cells, here and in the sections, are not resolved.",
                resolution.resolution_figure),
 )
 

@@ -8,7 +8,6 @@ import numpy as np
 
 from ..analysis.coverage import covered
 from . import style
-from .bands import BAND_COLOR
 from .section import colorbar, display_cells, draw_base, view_window
 
 __all__ = ["design_figure", "TARGET_COLOR"]
@@ -40,8 +39,9 @@ def _panel(fig, ax, layout, result, window, vmin, vmax):
     target = ground - layout.depth_true_m
     ax.plot(layout.x, target, "--", color=TARGET_COLOR, lw=1.4, zorder=6, label="target in the model")
     # the band's edges as lines too: where it is wide, the shading alone is easy to miss
-    for edge in (layout.band_low_m, layout.band_high_m):
-        ax.plot(layout.x, ground - edge, ":", color=BAND_COLOR, lw=1.0, zorder=5)
+    for k, edge in enumerate((layout.band_low_m, layout.band_high_m)):
+        ax.plot(layout.x, ground - edge, ":", color=style.GREY, lw=1.0, zorder=5,
+                label="edges of the band, also below the depth of investigation" if k == 0 else None)
     missed = np.where(layout.resolved, np.nan, target)
     ax.plot(layout.x, missed, "-", color=MISSED_COLOR, lw=3.0, alpha=0.8, zorder=5,
             label=f"not resolved within {result.tolerance_m:g} m")
@@ -58,7 +58,8 @@ def _panel(fig, ax, layout, result, window, vmin, vmax):
 def design_figure(result):
     """One section per layout (its central inversion, blank where no ray goes), the
     model's target surface dashed, its unresolved stretches marked, the ensemble's band
-    and median where the inversion reaches the target's velocity; common axes.
+    (hatched above the depth of investigation, its edges dotted everywhere) and median
+    where the inversion reaches the target's velocity; common axes.
 
     Returns
     -------

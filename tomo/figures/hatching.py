@@ -11,8 +11,9 @@ from . import style
 
 __all__ = ["draw_unresolved", "unresolved_legend", "HATCH"]
 
-#: Hatch of the cells a resolution test did not resolve.
-HATCH = "//"
+#: Stipple of the cells a resolution test did not resolve: dots, since diagonal hatching
+#: marks an ensemble's depth band (:mod:`tomo.figures.bands`) on the same sections.
+HATCH = ".."
 
 
 def _unresolved_cells(run):
