@@ -111,6 +111,8 @@ def design(model: PathLike, layouts: Sequence[PathLike], noise_ms: float = DEFAU
         report = None if progress is None else (lambda done, total, *_, n=name: progress(n, done, total))
         run = ensemble(survey, members=members, seed=seed, workers=workers, progress=report,
                        out=None if folder is None else folder / f"{Path(str(name)).stem}.h5", **settings)
+        surface: Any = None
+        band: Any = None
         try:
             surface, band = run.surface(velocity), run.band(velocity)
         except TomoError:
@@ -135,7 +137,7 @@ def write_design(result: DesignResult, folder: PathLike) -> list[Path]:
     from ..results.design_table import write_design_table
     from .workflow import prepare_folder
 
-    folder = prepare_folder(folder)
-    table = write_design_table(folder / "design.csv", result)
-    figure = style.save(design_figure(result), folder / "design.png")
+    where = Path(prepare_folder(folder))
+    table = write_design_table(where / "design.csv", result)
+    figure = style.save(design_figure(result), where / "design.png")
     return [table, figure]

@@ -6,12 +6,13 @@ import math
 from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
+from typing import cast
 
 from ..core.errors import InputError
 from ..results.run import Run
 from ..tomography.inversion import IterationInfo
 from ..tomography.run import RunData
-from ..uncertainty.resolution import DEFAULT_AMPLITUDE_PCT, MAX_AMPLITUDE_PCT, SEMBLANCE_THRESHOLD
+from ..uncertainty.resolution import DEFAULT_AMPLITUDE_PCT, MAX_AMPLITUDE_PCT, SEMBLANCE_THRESHOLD, ResolutionRecord
 from .workflow import PathLike
 
 __all__ = ["resolve", "resolution_summary", "plot_resolution", "DEFAULT_AMPLITUDE_PCT", "MAX_AMPLITUDE_PCT",
@@ -84,17 +85,18 @@ def resolve(run: RunData | PathLike, checker_m: float | None = None, amplitude_p
         raise InputError("give either a checker size or a target model (not both, not neither)", field="--checker")
     run = Run.from_data(run) if isinstance(run, RunData) else Run.read(run)
     mesh, picks = run_mesh(run), run_picks(run)
-    if target is None:
-        check_checker(float(checker_m), float(amplitude_pct), mesh, picks)
-        true = checker_pattern(mesh, float(checker_m), float(amplitude_pct), float(picks.receiver_x.min()))
-        kind, size, amp, name = "checker", float(checker_m), float(amplitude_pct), None
+    if checker_m is not None:
+        size = float(checker_m)
+        check_checker(size, float(amplitude_pct), mesh, picks)
+        true = checker_pattern(mesh, size, float(amplitude_pct), float(picks.receiver_x.min()))
+        kind, amp, name = "checker", float(amplitude_pct), None
     else:
         model = read_model(target)
         true = target_pattern(model, mesh)
         if not (abs(true[mesh.ground]) > 1e-6).any():
             raise InputError("the model's bodies lie outside the run's grid: nothing to recover", path=target,
                              field="body")
-        kind, size, amp, name = "target", feature_size(model), math.nan, Path(target).name
+        kind, size, amp, name = "target", feature_size(model), math.nan, Path(str(target)).name
     if window_m is not None and not (math.isfinite(window_m) and window_m > 0):
         raise InputError(f"score window {window_m:g} m must be positive", field="--window")
     record = resolution_test(run, true, kind, size, amp, seed=seed, window_m=window_m, workers=workers,
@@ -107,7 +109,7 @@ def resolve(run: RunData | PathLike, checker_m: float | None = None, amplitude_p
 
 def resolution_summary(run: Run) -> list[str]:
     """Lines saying what the run's resolution test found (over the well-covered cells)."""
-    record = run.resolution
+    record = cast("ResolutionRecord | None", run.resolution)
     if record is None:
         return ["the run holds no resolution test"]
     s = record.summary(run)
