@@ -6,7 +6,9 @@ forward-modelled on a grid twice as fine as the inversion's (so the inversion do
 meet its own discretisation: the "inverse crime" of testing a method on data made by
 the same operator; Wirgin 2004, "The inverse crime", arXiv math-ph/0401050, from
 memory), with Gaussian noise of the stated sigma; then an inversion and a small
-ensemble of the picks (:mod:`tomo.uncertainty.ensemble`). Each layout is judged on the
+ensemble of the picks (:mod:`tomo.uncertainty.ensemble`; the members' band alone,
+without the extremal bounds of ``tomo ensemble``, which would add a dozen inversions
+per layout). Each layout is judged on the
 *target*: the ``V`` m/s surface of the model, by default with V in the middle of the
 velocity step at the model's deepest interface (the geometric mean of the velocities
 just above and just below it, :func:`target_velocity`), so that the surface is that
