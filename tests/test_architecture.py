@@ -23,10 +23,7 @@ PACKAGE = ROOT / "tomo"
 #: fails when an entry is no longer needed, so the list only shrinks.
 MAX_FUNCTION_LINES = 100
 MAX_MODULE_LINES = 600
-LONG_FUNCTIONS = {
-    # ray tracing of every pick in one loop kept together for speed (inversion's owner)
-    ("tomo/tomography/rays.py", "trace_many"),
-}
+LONG_FUNCTIONS: set = set()
 LONG_MODULES: set = set()
 
 

@@ -175,7 +175,38 @@ def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step
     """
     h = mesh.h
     step = float(mesh.refine if step is None else step)
-    ds = step * h
+    steps = _march(mesh, grad, sources, radii, starts, which, step * h, keep_paths)
+    if ground_only:
+        columns = np.full(mesh.ground.size, -1)
+        columns[mesh.ground.ravel()] = np.arange(int(mesh.ground.sum()))
+    else:
+        columns = np.arange(mesh.ground.size)
+    booker = _CellBooking(mesh, booking, columns)
+    n = starts.shape[0]
+    length = _book(booker, steps, step, n)
+    out_paths = [np.array(q) for q in steps.paths] if keep_paths else None
+    return Rays(booker.matrix(n), length, out_paths, steps.unfinished)
+
+
+@dataclass
+class _Steps:
+    """What marching the rays made: every step (ray, from, to), the straight last
+    stretches (ray, midpoint, length), the paths when kept, and the unfinished count."""
+
+    seg_ray: list
+    seg_from: list
+    seg_to: list
+    straight_ray: list
+    straight_mid: list
+    straight_len: list
+    paths: list | None
+    unfinished: int = 0
+
+
+def _march(mesh, grad, sources, radii, starts, which, ds, keep_paths):
+    """Step every ray down its field's time gradient by ``ds`` (m) until it is within its
+    start circle (or a step) of the source; the rays still travelling are kept compact."""
+    h = mesh.h
     ny, nx = mesh.node_shape
     n = starts.shape[0]
     which = np.asarray(which, int)
@@ -184,84 +215,72 @@ def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step
     # finish inside the exactly-timed circle, or within a step of the source
     finish = np.maximum(np.asarray(radii, float)[which], ds)
     terrain = mesh.terrain
-    x_lo, x_hi = mesh.x0, mesh.x1
-    z_lo = mesh.z_bottom
+    x_lo, x_hi, z_lo, top = mesh.x0, mesh.x1, mesh.z_bottom, mesh.z_top
     flat_g = np.asarray(grad).reshape(-1)
-    field_offset = ny * nx
     dist0 = np.hypot(pos[:, 0] - src[:, 0], pos[:, 1] - src[:, 1])
     # a ray is rarely more than about twice as long as the straight line (common practice)
     max_steps = int(np.ceil(3.0 * (dist0.max(initial=0.0) + ds) / ds)) + 20
-    seg_ray, seg_from, seg_to = [], [], []  # steps: ray ids, start and end points
-    straight_ray, straight_mid, straight_len = [], [], []
-    paths = [[p.copy()] for p in pos] if keep_paths else None
-    # compact state of the rays still travelling (gathered again only when some finish)
-    ids = np.arange(n)
-    p = pos.copy()
-    s = src.copy()
-    fin = finish.copy()
-    base = which * field_offset
-    unfinished = 0
-    top = mesh.z_top
+    out = _Steps([], [], [], [], [], [], [[q.copy()] for q in pos] if keep_paths else None)
+    ids, p, s, fin, base = np.arange(n), pos.copy(), src.copy(), finish.copy(), which * (ny * nx)
     for count in range(max_steps + 1):
         if ids.size == 0:
             break
-        d = np.hypot(p[:, 0] - s[:, 0], p[:, 1] - s[:, 1])
-        done = d <= fin
+        done = np.hypot(p[:, 0] - s[:, 0], p[:, 1] - s[:, 1]) <= fin
         if count == max_steps:
-            unfinished = int((~done).sum())
+            out.unfinished = int((~done).sum())
             done[:] = True
         if done.any():
-            _straight(p[done], s[done], ids[done], h, straight_ray, straight_mid, straight_len)
+            _straight(p[done], s[done], ids[done], h, out.straight_ray, out.straight_mid, out.straight_len)
             if keep_paths:
                 for r, q in zip(ids[done], s[done]):
-                    paths[r].append(q.copy())
+                    out.paths[r].append(q.copy())
             keep = ~done
             ids, p, s, fin, base = ids[keep], p[keep], s[keep], fin[keep], base[keep]
             if ids.size == 0:
                 break
-        # gradient at the ray points, bilinear over the four surrounding nodes
-        fj = (p[:, 0] - x_lo) / h
-        fi = (top - p[:, 1]) / h
-        j = np.minimum(np.maximum(fj.astype(int), 0), nx - 2)  # points are inside: floor
-        i = np.minimum(np.maximum(fi.astype(int), 0), ny - 2)
-        tx = np.minimum(np.maximum(fj - j, 0.0), 1.0)
-        tz = np.minimum(np.maximum(fi - i, 0.0), 1.0)
-        idx = base + i * nx + j
-        g = ((1 - tz) * ((1 - tx) * flat_g[idx] + tx * flat_g[idx + 1])
-             + tz * ((1 - tx) * flat_g[idx + nx] + tx * flat_g[idx + nx + 1]))
-        norm = np.abs(g)
-        good = norm > 0
-        if good.all():
-            step_dir = -g / norm
-        else:
-            # no usable gradient (should not happen in the ground): head for the source
-            toward = (s[:, 0] - p[:, 0]) + 1j * (s[:, 1] - p[:, 1])
-            step_dir = np.where(good, -g / np.where(good, norm, 1.0), toward / np.maximum(np.abs(toward), 1e-12))
+        step_dir = _direction(flat_g, base, p, s, x_lo, top, h, nx, ny)
         new_x = np.minimum(np.maximum(p[:, 0] + ds * step_dir.real, x_lo), x_hi)
-        new_z = np.minimum(np.maximum(p[:, 1] + ds * step_dir.imag, z_lo),
-                           terrain.elevation(new_x, extrapolate=True))
+        new_z = np.minimum(np.maximum(p[:, 1] + ds * step_dir.imag, z_lo), terrain.elevation(new_x, extrapolate=True))
         new = np.column_stack([new_x, new_z])
-        seg_ray.append(ids)
-        seg_from.append(p)
-        seg_to.append(new)
+        out.seg_ray.append(ids)
+        out.seg_from.append(p)
+        out.seg_to.append(new)
         p = new
         if keep_paths:
             for r, q in zip(ids, new):
-                paths[r].append(q)
-    if ground_only:
-        columns = np.full(mesh.ground.size, -1)
-        columns[mesh.ground.ravel()] = np.arange(int(mesh.ground.sum()))
-    else:
-        columns = np.arange(mesh.ground.size)
-    booker = _CellBooking(mesh, booking, columns)
-    # steps: book each in pieces no longer than PIECE node spacings, at their midpoints, in
-    # path order ray by ray (so that consecutive pieces in one cell merge cheaply), a
-    # block of steps at a time (no piece-sized arrays for the whole chunk)
-    rows_s = np.concatenate(seg_ray) if seg_ray else np.zeros(0, int)
+                out.paths[r].append(q)
+    return out
+
+
+def _direction(flat_g, base, p, s, x_lo, top, h, nx, ny):
+    """Unit step directions (complex: x + i z) down the gradient at the points ``p``,
+    bilinear over the four surrounding nodes of each ray's field."""
+    fj = (p[:, 0] - x_lo) / h
+    fi = (top - p[:, 1]) / h
+    j = np.minimum(np.maximum(fj.astype(int), 0), nx - 2)  # points are inside: floor
+    i = np.minimum(np.maximum(fi.astype(int), 0), ny - 2)
+    tx = np.minimum(np.maximum(fj - j, 0.0), 1.0)
+    tz = np.minimum(np.maximum(fi - i, 0.0), 1.0)
+    idx = base + i * nx + j
+    g = ((1 - tz) * ((1 - tx) * flat_g[idx] + tx * flat_g[idx + 1])
+         + tz * ((1 - tx) * flat_g[idx + nx] + tx * flat_g[idx + nx + 1]))
+    norm = np.abs(g)
+    good = norm > 0
+    if good.all():
+        return -g / norm
+    # no usable gradient (should not happen in the ground): head for the source
+    toward = (s[:, 0] - p[:, 0]) + 1j * (s[:, 1] - p[:, 1])
+    return np.where(good, -g / np.where(good, norm, 1.0), toward / np.maximum(np.abs(toward), 1e-12))
+
+
+def _book(booker, steps, step, n):
+    """Book every step's length into the cells (in pieces no longer than PIECE node
+    spacings, at their midpoints, ray by ray in path order so that consecutive pieces in
+    one cell merge cheaply, a block of steps at a time); returns each ray's length, m."""
+    rows_s = np.concatenate(steps.seg_ray) if steps.seg_ray else np.zeros(0, int)
     order = np.argsort(rows_s, kind="stable")
-    a = np.concatenate(seg_from) if seg_from else np.zeros((0, 2))
-    b = np.concatenate(seg_to) if seg_to else np.zeros((0, 2))
-    del seg_from, seg_to
+    a = np.concatenate(steps.seg_from) if steps.seg_from else np.zeros((0, 2))
+    b = np.concatenate(steps.seg_to) if steps.seg_to else np.zeros((0, 2))
     sub = max(int(np.ceil(step / PIECE - 1e-9)), 1)
     frac = (np.arange(sub) + 0.5) / sub
     length = np.zeros(n)
@@ -273,13 +292,11 @@ def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step
         lens = np.hypot(b_k[:, 0] - a_k[:, 0], b_k[:, 1] - a_k[:, 1]) / sub
         booker.add(np.repeat(r_k, sub), mids, np.repeat(lens, sub))
         length += np.bincount(r_k, weights=lens * sub, minlength=n)
-    if straight_ray:
-        rows, lens = np.concatenate(straight_ray), np.concatenate(straight_len)
-        booker.add(rows, np.concatenate(straight_mid), lens)
+    if steps.straight_ray:
+        rows, lens = np.concatenate(steps.straight_ray), np.concatenate(steps.straight_len)
+        booker.add(rows, np.concatenate(steps.straight_mid), lens)
         length += np.bincount(rows, weights=lens, minlength=n)
-    matrix = booker.matrix(n)
-    out_paths = [np.array(q) for q in paths] if keep_paths else None
-    return Rays(matrix, length, out_paths, unfinished)
+    return length
 
 
 def _straight(p, s, ray_ids, ds, out_ray, out_mid, out_len):
