@@ -3,7 +3,8 @@
 Inverts the demo picks (layered start), runs checkerboard tests of 10, 5 and 2.5 m
 (four, two and one station spacing) and prints the scores over the well-covered cells
 and the seconds each took; with ``--design``, also tries the demo layout and the two
-cheaper ones of ``docs/design/`` on the demo model (about two minutes on two cores).
+cheaper ones of ``docs/design/`` on the demo model, within 1 and 2 m (70-80 s each on
+two cores).
 
     python benchmarks/resolution.py [--design]
 """

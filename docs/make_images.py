@@ -45,7 +45,7 @@ def resolution_image(run):
 
 def design_image():
     """The README's survey design: the demo layout against two cheaper ones on the demo
-    model, within 2 m (about two minutes)."""
+    model, within 2 m (about 80 s on two cores)."""
     layouts = [tomo.demo_dir() / "layout.csv", DESIGN / "coarse.csv", DESIGN / "short.csv"]
     result = design(tomo.demo_dir(("site.toml",)) / "site.toml", layouts, noise_ms=0.5, tolerance_m=2.0)
     _save(design_figure(result), "design-demo")

@@ -153,6 +153,7 @@ def test_the_command_prints_the_table_and_writes_its_files(files, tmp_path, caps
     (["--tolerance-m", "-1"], "--tolerance-m"),
     (["--contour", "-5"], "--contour"),
     (["--members", "1"], "--members"),
+    (["--contour", "9000"], "--contour"),  # faster than anything in the model
 ])
 def test_bad_requests_are_one_line_errors(files, tmp_path, args, field, capsys):
     folder, short, long = files

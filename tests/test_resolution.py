@@ -201,6 +201,7 @@ def test_a_target_body_is_its_contrast_against_the_layers(run, tmp_path):
     (["--checker", "120"], "--checker"),       # longer than the line (54 m)
     (["--checker", "8", "--amplitude", "0"], "--amplitude"),
     (["--checker", "8", "--amplitude", "60"], "--amplitude"),
+    (["--target", "site.toml", "--amplitude", "5"], "--amplitude"),  # a target's contrast is its file's
 ])
 def test_bad_requests_are_one_line_errors_and_leave_the_file(run_file, args, field, capsys):
     before = run_file.read_bytes()

@@ -31,6 +31,21 @@ def _check(noise_ms: float, tolerance_m: float, members: int, layouts: Sequence[
         raise InputError(f"an ensemble needs at least 2 members, got {members}", field="--members")
 
 
+def _check_target(site: Any, velocity: float, region: tuple[float, float], contour_m_s: float | None) -> None:
+    """Refuse a target the model never reaches under the layouts (a --contour above its
+    velocities, or deeper than the region is long)."""
+    import numpy as np
+
+    from ..uncertainty.design import model_surface
+
+    depth_m = max(region[1] - region[0], 10.0)
+    depth = model_surface(site, np.linspace(region[0], region[1], 25), velocity, depth_m)
+    if not np.isfinite(depth).any():
+        raise InputError(f"the model never reaches {velocity:.0f} m/s within {depth_m:.0f} m of the ground "
+                         f"between x = {region[0]:g} and {region[1]:g} m: no target to resolve",
+                         path=site.path, field="--contour" if contour_m_s is not None else "layer")
+
+
 def _names(layouts: Sequence[PathLike]) -> list[str]:
     """Each layout's name: its file stem, or its path where stems repeat."""
     stems = [Path(p).stem for p in layouts]
@@ -100,6 +115,7 @@ def design(model: PathLike, layouts: Sequence[PathLike], noise_ms: float = DEFAU
     read = [read_picks(p, terrain=site.terrain, layout=True) for p in layouts]
     folder = None if out is None else prepare_folder(out)
     region = target_region(read)
+    _check_target(site, velocity, region, contour_m_s)
     results = []
     for name, layout in zip(_names(layouts), read):
         terrain = site.terrain
