@@ -34,10 +34,10 @@ def place_boreholes(boreholes: PathLike | Boreholes, survey: Survey) -> Borehole
     return read.on_line(float(xs.min()), float(xs.max()), stations=survey.stations)
 
 
-def grid_boreholes(survey: Survey, grid: Mesh, boreholes: PathLike | Boreholes | None,
+def grid_boreholes(survey: Survey, grid: Mesh | None, boreholes: PathLike | Boreholes | None,
                    contour_m_s: float | None) -> Boreholes | None:
-    """The boreholes of a run placed on its line and checked against its grid (and the
-    contour velocity checked); None without boreholes."""
+    """The boreholes of a run placed on its line and checked against its grid (when
+    given; and the contour velocity checked); None without boreholes."""
     if contour_m_s is not None and not (math.isfinite(contour_m_s) and contour_m_s > 0):
         raise InputError(f"contour velocity must be a positive number of m/s, got {contour_m_s!r}", field="--contour")
     if boreholes is None:
@@ -45,6 +45,8 @@ def grid_boreholes(survey: Survey, grid: Mesh, boreholes: PathLike | Boreholes |
             raise InputError("a contour velocity goes with boreholes (--boreholes B.csv)", field="--contour")
         return None
     placed = place_boreholes(boreholes, survey)
+    if grid is None:
+        return placed
     return placed.check_depths(grid.terrain.elevation(placed.x, extrapolate=True), grid.z_bottom)
 
 
@@ -65,20 +67,20 @@ def tied_layers(survey: Survey, terrain: Any, layers: LayeredResult | None, bran
 def invert_with_boreholes(survey: Survey, grid: Mesh, terrain: Any, velocity: Any, opts: InversionSettings,
                           progress: Callable[[IterationInfo], object], checkpoint: Any, layered: Any,
                           notes: list[str], extra: dict[str, Any], placed: Boreholes | None,
-                          contour_m_s: float | None) -> Any:
+                          contour_m_s: float | None, pass_progress: Callable[[Any], object] | None = None) -> Any:
     """The inversion (:func:`tomo.tomography.inversion.invert`); with boreholes, the run
     without them and the run with them (returned, and written), with the comparison of
     the two in ``borehole_fit``."""
     if placed is None:
         return invert(survey.picks, grid, velocity, opts, progress=progress, checkpoint=checkpoint,
-                      layered=layered, notes=notes, extra_settings=extra)
+                      layered=layered, notes=notes, extra_settings=extra, pass_progress=pass_progress)
     from ..analysis.borehole_fit import fit_boreholes
     from ..tomography.borehole_runs import contour_points, invert_twice
 
     points = contour_points(placed, grid, survey.picks, layered, terrain, contour_m_s)
     extra = dict(extra, boreholes_file=placed.path, borehole_contours_m_s=[float(v) for v in points.velocity_m_s])
     free, data = invert_twice(survey.picks, grid, velocity, opts, points, progress=progress, checkpoint=checkpoint,
-                              layered=layered, notes=notes, extra_settings=extra)
+                              layered=layered, notes=notes, extra_settings=extra, pass_progress=pass_progress)
     data.borehole_fit = fit_boreholes(free, data, points, opts.chi2_tolerance)
     if checkpoint is not None:
         checkpoint(data)  # once more, with the comparison

@@ -32,8 +32,11 @@ from ..survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
 from ..survey.units import DISTANCE_UNITS, TIME_UNITS
 from ..tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
 from ..tomography.mesh import Mesh, mesh_for_picks
+from ..tomography.meter import PassProgress
 from ..tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
+from ..tomography.workers import check_workers
 from .boreholes import grid_boreholes, invert_with_boreholes, place_boreholes, tied_layers
+from .planning import RunPlan, plan_run
 
 if TYPE_CHECKING:  # imported for the type hints only: both load matplotlib
     from ..analysis.surface import Surface
@@ -47,7 +50,7 @@ __all__ = ["NO_TERRAIN_NOTE", "demo_dir", "read_survey", "check_survey", "interp
            "write_report", "read_project", "check_same_picks", "write_grid", "write_surface", "Survey", "Run",
            "LayeredResult", "QCReport",
            "InversionSettings", "IterationInfo", "InversionInterrupted", "check_output_path",
-           "export", "pick_records", "plot_gathers", "PickSettings", "RecordSettings"]
+           "export", "pick_records", "plot_gathers", "PickSettings", "RecordSettings", "PassProgress", "RunPlan"]
 
 #: Gaussian smoothing of the layered start, model cells (about one station spacing).
 START_SMOOTHING_CELLS = LAYERED_SMOOTHING_CELLS
@@ -196,6 +199,8 @@ def synthesize(model: PathLike, layout: PathLike, out: PathLike, **options: Any)
 
 
 def _settings(values: dict[str, Any]) -> InversionSettings:
+    if "workers" in values:
+        check_workers(values["workers"])
     try:
         return InversionSettings.from_dict(values).check()
     except TypeError as exc:
@@ -253,12 +258,49 @@ def _log_progress(info: IterationInfo) -> None:
     logger.info("%s", info)
 
 
+def _plan(survey: Survey, terrain: Any, mesh: PathLike | MeshSpec | None, start: str, layers: LayeredResult | None,
+          branches: int | None, smoothing: float, notes: list[str], opts: InversionSettings,
+          on_plan: Callable[[RunPlan], object] | None, boreholes: PathLike | Boreholes | None,
+          contour_m_s: float | None) -> tuple[Mesh, MeshSpec, Any, Any, str, str | None, Boreholes | None]:
+    """The boreholes placed on the line (the layered start tied to them), the grid and
+    the starting model on it (:func:`tomo.api.planning.plan_run`: the depth from the
+    starting model's rays unless the spec sets it, the estimate refused when it cannot
+    fit), the boreholes checked against the grid; appends the start's notes and the
+    depth's reason to ``notes``."""
+    placed = grid_boreholes(survey, None, boreholes, contour_m_s)  # on the line, before any solve
+    if placed is not None and start == "layered":
+        layers = tied_layers(survey, terrain, layers, branches, placed, opts.default_sigma_ms)
+    spec_in = mesh if isinstance(mesh, MeshSpec) else (read_mesh_spec(mesh) if mesh is not None else None)
+    given = {"layers": layers}
+
+    def start_for(grid: Mesh) -> tuple[Any, Any, str, list[str]]:
+        start_notes: list[str] = []
+        velocity, layered, used = _start_model(survey, grid, terrain, start, given["layers"], branches, smoothing,
+                                               start_notes, opts.default_sigma_ms)
+        if used == "layered" and given["layers"] is None:
+            given["layers"] = LayeredResult.from_dict(layered)  # interpreted once, painted on every grid
+        return velocity, layered, used, start_notes
+
+    spec = inversion_mesh_spec(station_spacing(survey.picks), spec_in)
+    grid, spec, (velocity, layered, used, start_notes), plan = plan_run(
+        survey.picks, survey.picks_path, terrain, spec, spec_in is not None and spec_in.depth_m is not None,
+        start_for, opts, placed)
+    notes += start_notes + [f"grid depth {plan.depth}"]
+    # logged at debug level: the info level has one line per iteration (its contract)
+    (on_plan or (lambda p: logger.debug("%s", "; ".join(p.lines()))))(plan)
+    if placed is not None:
+        placed = placed.check_depths(grid.terrain.elevation(placed.x, extrapolate=True), grid.z_bottom)
+    mesh_file = None if mesh is None or isinstance(mesh, MeshSpec) else str(mesh)
+    return grid, spec, velocity, layered, used, mesh_file, placed
+
+
 def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
            layers: LayeredResult | PathLike | None = None, mesh: PathLike | MeshSpec | None = None,
            out: PathLike | None = None, progress: Callable[[IterationInfo], object] | None = None, *,
            branches: int | None = None, start_smoothing: float | None = None,
            boreholes: PathLike | Boreholes | None = None, contour_m_s: float | None = None,
-           **settings: Any) -> Run:
+           pass_progress: Callable[[PassProgress], object] | None = None,
+           on_plan: Callable[[RunPlan], object] | None = None, **settings: Any) -> Run:
     """Travel-time tomography of a survey, to the noise level of its picks.
 
     Regularised Gauss-Newton updates with rays through fast-marching travel times,
@@ -278,26 +320,27 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
         Start from this layered interpretation (or layers file) of the same picks
         instead of interpreting them again.
     mesh : path or MeshSpec, optional
-        Mesh spec (TOML) or spec; unset fields come from the survey (cells of half the
-        station spacing, depth a third of the longest offset).
+        Mesh spec (TOML) or spec; unset fields come from the survey: cells of half the
+        station spacing, a depth that holds the starting model's deepest ray with room
+        (:mod:`tomo.tomography.depth`; one forward pass with rays checks it).
     out : path, optional
-        Run file (HDF5), rewritten after every finished iteration, so an interrupted
-        run keeps the last finished one.
+        Run file (HDF5), rewritten after every iteration (an interrupted run keeps it).
     progress : callable, optional
         Called with an :class:`IterationInfo` (``str()`` is one line) after the start
         and each iteration; default: logged at INFO level to the logger ``"tomo"``.
-    branches : int, optional
-        Travel-time branches on every side for the layered start (default: chosen by
-        the BIC).
-    start_smoothing : float, optional
-        Gaussian smoothing of the layered start, model cells (default
-        :data:`START_SMOOTHING_CELLS`; 0 keeps the sharp layers).
+    branches, start_smoothing : int, float, optional
+        The layered start's travel-time branches on every side (default: chosen by the
+        BIC) and Gaussian smoothing, model cells (default :data:`START_SMOOTHING_CELLS`).
     boreholes, contour_m_s : path or Boreholes, float, optional
         Boreholes the ``contour_m_s`` surface (m/s; default per borehole the mean of the
         layer velocities around the refractor it logged) must pass through within their
         sigma (:mod:`tomo.tomography.constraints`); the run is made without and with
         them, ``run.borehole_fit`` compares the two and flags what the picks resist
         (:mod:`tomo.analysis.borehole_fit`); the layered result is tied to them too.
+    pass_progress, on_plan : callable, optional
+        Called with a :class:`PassProgress` as each iteration's shots get done (for a
+        progress bar), and once with the :class:`RunPlan` (grid, its depth and why,
+        the estimate of time and memory) before the first iteration.
     **settings
         Fields of :class:`InversionSettings` (``max_iterations``, ``default_sigma_ms``,
         ``smooth_x``, ``workers``, ...).
@@ -312,7 +355,8 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     ------
     InputError
         For a bad setting, mesh spec, layers file, starting-model option, borehole
-        (beyond the line, below the grid) or contour.
+        (beyond the line, below the grid) or contour, and for a run whose estimated
+        memory exceeds what is available (naming the estimate and a coarser cell).
     InversionInterrupted
         On Ctrl-C (a KeyboardInterrupt); ``out`` then holds the last finished iteration.
 
@@ -332,24 +376,20 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     notes = list(survey.notices)
     terrain, ground_notes = survey.ground()
     notes += ground_notes
-    grid, spec, mesh_file = _mesh(survey, terrain, mesh)
-    placed, given = grid_boreholes(survey, grid, boreholes, contour_m_s), layers
-    if placed is not None and start == "layered":
-        layers = tied_layers(survey, terrain, layers, branches, placed, opts.default_sigma_ms)
-    velocity, layered, start_used = _start_model(survey, grid, terrain, start, layers, branches, smoothing, notes,
-                                                 opts.default_sigma_ms)
+    grid, spec, velocity, layered, start_used, mesh_file, placed = _plan(
+        survey, terrain, mesh, start, layers, branches, smoothing, notes, opts, on_plan, boreholes, contour_m_s)
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
              "mesh_spec": spec.as_dict(), "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,
              "mesh_file": mesh_file, "stations_file": survey.stations_path}
-    if given is not None:
+    if layers is not None:
         extra["layers_file"] = layers_file
     from ..results.runfile import RunWriter
 
     # the stations are not the inversion's business but go into every run file written
     checkpoint = None if out is None else RunWriter(out, stations=survey.stations, boreholes=placed)
     data = invert_with_boreholes(survey, grid, terrain, velocity, opts, progress or _log_progress, checkpoint,
-                                 layered, notes, extra, placed, contour_m_s)
+                                 layered, notes, extra, placed, contour_m_s, pass_progress)
     data.stations = survey.stations
     data.boreholes = placed
     return Run.from_data(data)

@@ -31,7 +31,8 @@ def register(sub):
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (x, z in m)")
     add_line_options(p)
     p.add_argument("--mesh", metavar="MESH.toml",
-                   help="mesh spec (default: cells of half the station spacing, chosen from the survey)")
+                   help="mesh spec (default: cells of half the station spacing, and a depth that holds the "
+                        "starting model's deepest ray with room to spare)")
     p.add_argument("--start", choices=list(STARTS), default=STARTS[0],
                    help="starting model: the layered interpretation (default) or a 1-D "
                         "velocity-depth gradient fitted to the picks")
@@ -74,7 +75,7 @@ def register(sub):
     g.add_argument("--v-max", type=float, metavar="M_S",
                    help="highest velocity allowed, m/s (default: max(7000, twice the starting maximum))")
     g.add_argument("--workers", metavar="N", type=int,
-                   help=f"processes for forward solves and rays (default {d.workers})")
+                   help=f"processes for forward solves and rays, at most the cores (default {d.workers})")
     p.set_defaults(run=run)
 
 
@@ -83,19 +84,37 @@ def _print_progress(info):
     note(str(info))
 
 
+def _print_plan(plan):
+    """The grid, its depth and the estimate, before the first iteration."""
+    note(f"grid: {plan.mesh}")
+    note(f"grid depth: {plan.depth}")
+    note(plan.estimate.describe())
+
+
 def run(args):
     from .. import api
     from ..api import InversionInterrupted
+    from .bars import IterationBars
 
     settings = {field: getattr(args, dest) for dest, field in SETTINGS.items() if getattr(args, dest) is not None}
     survey = read_survey_args(args)
+    bars = IterationBars()
+
+    def iteration_line(info):
+        bars.close()  # the iteration's bar makes way for its line
+        _print_progress(info)
+
     try:
         result = api.invert(survey, start=args.start, layers=args.layers, mesh=args.mesh, out=args.out,
-                            progress=_print_progress, branches=args.branches, start_smoothing=args.start_smoothing,
-                            boreholes=args.boreholes, contour_m_s=args.contour, **settings)
+                            progress=iteration_line, branches=args.branches, start_smoothing=args.start_smoothing,
+                            boreholes=args.boreholes, contour_m_s=args.contour, pass_progress=bars.passes,
+                            on_plan=_print_plan, **settings)
     except InversionInterrupted as exc:
+        bars.close()
         print(f"tomo invert: {exc.message}", file=sys.stderr)
         return 130
+    finally:
+        bars.close()
     for message in result.notes:
         note(message)
     print(f"wrote {args.out}: {result.iterations} iteration(s), chi2 {result.chi2:.3f}, "

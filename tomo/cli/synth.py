@@ -16,11 +16,14 @@ def register(sub):
                    help="pick file without time_ms: the shot-geophone pairs to compute")
     p.add_argument("--out", required=True, metavar="PICKS.csv", help="pick file to write")
     p.add_argument("--terrain", metavar="T.csv", help="terrain file (wins over the model's [terrain])")
-    p.add_argument("--mesh", metavar="MESH.toml", help="mesh spec (default: chosen from the layout)")
+    p.add_argument("--mesh", metavar="MESH.toml",
+                   help="mesh spec (default: chosen from the layout, as deep as the model's deepest first-arrival "
+                        "ray needs with room to spare)")
     p.add_argument("--noise-ms", type=float, default=0.0,
                    help="standard deviation of Gaussian noise added to the times, ms (recorded as sigma_ms)")
     p.add_argument("--seed", type=int, default=None, help="seed of the noise generator")
-    p.add_argument("--workers", type=int, default=1, help="processes for the forward solves (default 1)")
+    p.add_argument("--workers", type=int, default=1,
+                   help="processes for the forward solves, at most the cores (default 1)")
     p.add_argument("--records", metavar="DIR",
                    help="also write a SEG-Y shot record per shot into DIR (a causal wavelet at each noise-free "
                         "first arrival, amplitude falling as 1/offset, white noise)")
@@ -49,6 +52,8 @@ def run(args):
     for message in info["notices"]:
         note(message)
     note(f"mesh: {info['mesh']}")
+    if not info["depth"].startswith("warning"):
+        note(f"grid depth: {info['depth']}")
     if info["fallbacks"]:
         note(f"{len(info['fallbacks'])} field(s) solved at first order after a second-order failure")
     t = picks.time_s * 1e3

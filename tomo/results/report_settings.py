@@ -107,6 +107,7 @@ def _numerics(s):
              + {"bilinear": ", lengths shared among the four nearest nodes",
                 "nearest": ", lengths given to the nearest node"}.get(s.get("ray_booking"), "")),
             ("Fields solved from the geophones when fewer than the shots", _on(s.get("reciprocity", False))),
+            ("Each field solved on its window of the grid, proved to hold its rays", _on(s.get("windows", False))),
             ("Parallel processes", f"{s.get('workers', 1)}")]
 
 
@@ -116,7 +117,7 @@ _KNOWN = {"picks_file", "terrain_file", "stations_file", "layers_file", "mesh_fi
           "chi2_target", "chi2_tolerance", "max_iterations", "min_improvement", "parameter", "smooth_x", "smooth_z",
           "damping", "reference", "v_min_m_s", "v_max_m_s", "v_min_m_s_used", "v_max_m_s_used", "trust_reduction",
           "lambda_tolerance", "line_search_steps", "solver", "solver_tol", "solver_iterations", "order",
-          "source_radius", "ray_step", "ray_booking", "reciprocity", "workers"}
+          "source_radius", "ray_step", "ray_booking", "reciprocity", "workers", "windows"}
 
 
 def settings_rows(settings):

@@ -50,8 +50,11 @@ from ..core.errors import InputError
 from ..core.version import __version__
 from ..survey.units import GROUND_VELOCITY_M_S
 from .constraints import PointPenalty
+from .depth import shallow_warning
+from .fields import origin_kind
+from .meter import Meter
 from .passes import forward_pass, trace_pass
-from .progress import InversionInterrupted, IterationInfo
+from .progress import InversionInterrupted, IterationInfo, interrupted
 from .regularisation import parameter_bounds, smoothness_operator, to_parameter, to_velocity
 from .run import RunData
 from .settings import InversionSettings
@@ -239,13 +242,15 @@ def _rms_ms(r):
 class _Evaluator:
     """Forward passes of trial models, with their cost booked in ``timing``."""
 
-    def __init__(self, problem, workers, timing):
+    def __init__(self, problem, workers, timing, meter=None):
         self.problem, self.workers, self.timing = problem, workers, timing
+        self.meter = meter or Meter()
 
     def __call__(self, m, rays=False):
         p = self.problem
         v = p.velocity_grid(m)
-        res = forward_pass(p.mesh, np.where(p.mesh.ground, 1.0 / v, 0.0), p.picks, p.settings, self.workers, rays)
+        res = forward_pass(p.mesh, np.where(p.mesh.ground, 1.0 / v, 0.0), p.picks, p.settings, self.workers, rays,
+                           progress=self.meter.callback("fields"))
         self.timing["forward_s"] += res.forward_s
         self.timing["rays_s"] += res.rays_s
         self.timing["pass_wall_s"] += res.wall_s
@@ -254,7 +259,8 @@ class _Evaluator:
         return res, r, float(np.mean((r * p.weight) ** 2))
 
     def trace(self, res):
-        rays_s, wall_s = trace_pass(self.problem.mesh, res, self.problem.settings, self.workers)
+        rays_s, wall_s = trace_pass(self.problem.mesh, res, self.problem.settings, self.workers,
+                                    progress=self.meter.callback("rays"))
         self.timing["rays_s"] += rays_s
         self.timing["pass_wall_s"] += wall_s
 
@@ -474,7 +480,7 @@ def _record(problem, state, step):
 # --- the run ----------------------------------------------------------------------------
 
 def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint=None, layered=None,
-           notes=None, extra_settings=None, reference_velocity=None, points=None):
+           notes=None, extra_settings=None, reference_velocity=None, points=None, pass_progress=None):
     """Invert first-arrival picks for a gridded velocity model (see module docstring).
 
     Parameters
@@ -507,6 +513,9 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint
         Borehole depths the iso-velocity surfaces must pass through
         (:mod:`tomo.tomography.constraints`): extra weighted rows of every update,
         outside the picks' chi2.
+    pass_progress : callable, optional
+        Called with a :class:`tomo.tomography.meter.PassProgress` as the fields and
+        rays of each iteration get done (for a progress bar).
 
     Returns
     -------
@@ -519,14 +528,14 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint
     # the cores with the worker processes made the solves 15 times slower (measured on
     # the demo line: 4.1 s against 0.26 s for 14 solves)
     with threadpool_limits(1, user_api="blas"), Workers(s.workers) as workers:
-        return _run(problem, workers, progress, checkpoint)
+        return _run(problem, workers, progress, checkpoint, Meter(pass_progress, origin_kind(picks, s.reciprocity)))
 
 
-def _run(problem, workers, progress, checkpoint):
+def _run(problem, workers, progress, checkpoint, meter=None):
     s = problem.settings
     t_begin = _time.perf_counter()
     timing = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "passes": 0, "pass_wall_s": 0.0}
-    evaluate = _Evaluator(problem, workers, timing)
+    evaluate = _Evaluator(problem, workers, timing, meter)
     res, r, chi2 = evaluate(problem.m_start, rays=True)
     state = State(problem.m_start.copy(), res, r, chi2, timing=timing,
                   penalty=None if problem.points is None else PointPenalty(problem.points))
@@ -560,6 +569,7 @@ def _run(problem, workers, progress, checkpoint):
             stop = STOP_MAX
         while stop is None:
             k += 1
+            evaluate.meter.begin(k)
             step = iterate(problem, state, evaluate)
             if step is not None:
                 state.models.append(problem.velocity_grid(state.m))
@@ -570,9 +580,12 @@ def _run(problem, workers, progress, checkpoint):
                 # the iteration it reports already written
                 keep(stop or f"running (iteration {k} finished)", converged)
                 report(k, step, start_s)
-        run = last["run"] if last["run"].stop_reason == stop else keep(stop, converged)
+        shallow = shallow_warning(problem.mesh, state.res.matrix, problem.picks)
+        if shallow:
+            problem.notes.append(shallow)
+        run = last["run"] if last["run"].stop_reason == stop and not shallow else keep(stop, converged)
     except KeyboardInterrupt:
-        raise _interrupted(last["run"], checkpoint, s) from None
+        raise interrupted(last["run"], checkpoint, s) from None
     run.timing = dict(timing, total_s=_time.perf_counter() - t_begin)
     return run
 
@@ -582,19 +595,3 @@ def _points_missed(problem, state):
     return state.penalty is not None and bool(state.penalty.missed(problem.mesh, state.m,
                                                                    problem.settings.parameter).any())
 
-
-def _interrupted(last, checkpoint, settings):
-    n_done = 0 if last is None else last.iterations
-    if last is not None:
-        last.stop_reason = "interrupted"
-        if checkpoint is not None:
-            try:
-                checkpoint(last)  # a run file is written atomically: a second Ctrl-C keeps the previous one
-            except KeyboardInterrupt:
-                pass
-    if checkpoint is not None and last is not None:
-        message = (f"interrupted; {checkpoint} holds the last finished iteration "
-                   f"({n_done} of {settings.max_iterations})")
-    else:
-        message = f"interrupted after {n_done} finished iteration(s); nothing was written"
-    return InversionInterrupted(message, last, checkpoint)

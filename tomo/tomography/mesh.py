@@ -193,6 +193,19 @@ class Mesh:
         values = np.where(self.ground, cell_values, 0.0).ravel()
         return (self.cell_to_node @ values).reshape(self.node_shape)
 
+    def window(self, j0, nx, nz):
+        """The sub-mesh of model columns ``j0 .. j0 + nx - 1`` and the top ``nz`` rows.
+
+        Its cells, forward nodes, ground and air are this mesh's, sliced: node (i, j)
+        of the window is node (i, j0 * refine + j) here (:meth:`node_columns`).
+        """
+        return Mesh(x0=self.x0 + j0 * self.cell, z_top=self.z_top, cell=self.cell, nx=int(nx), nz=int(nz),
+                    refine=self.refine, terrain=self.terrain)
+
+    def node_columns(self, j0, nx):
+        """The slice of forward-node columns of model columns ``j0 .. j0 + nx - 1``."""
+        return slice(j0 * self.refine, (j0 + nx) * self.refine + 1)
+
     def contains(self, x, z):
         """True where points (m) lie inside the grid and not above the ground."""
         x = np.asarray(x, float)

@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-__all__ = ["IterationInfo", "InversionInterrupted", "solver_summary"]
+__all__ = ["IterationInfo", "InversionInterrupted", "solver_summary", "interrupted"]
 
 
 @dataclass
@@ -63,3 +63,22 @@ class InversionInterrupted(KeyboardInterrupt):
         self.message = message
         self.run = run
         self.checkpoint = checkpoint
+
+
+def interrupted(last, checkpoint, settings):
+    """The :class:`InversionInterrupted` of a run stopped by Ctrl-C, its last finished
+    iteration (``last``, a RunData or None) given once more to ``checkpoint``."""
+    n_done = 0 if last is None else last.iterations
+    if last is not None:
+        last.stop_reason = "interrupted"
+        if checkpoint is not None:
+            try:
+                checkpoint(last)  # a run file is written atomically: a second Ctrl-C keeps the previous one
+            except KeyboardInterrupt:
+                pass
+    if checkpoint is not None and last is not None:
+        message = (f"interrupted; {checkpoint} holds the last finished iteration "
+                   f"({n_done} of {settings.max_iterations})")
+    else:
+        message = f"interrupted after {n_done} finished iteration(s); nothing was written"
+    return InversionInterrupted(message, last, checkpoint)

@@ -144,15 +144,18 @@ def trace_rays(mesh, field, x, z, keep_paths=False, step=DEFAULT_STEP, booking=D
 
 
 def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step=DEFAULT_STEP,
-               ground_only=False, booking=DEFAULT_BOOKING):
+               ground_only=False, booking=DEFAULT_BOOKING, columns=None):
     """Trace rays through several travel-time fields at once (vectorised over all rays).
 
     Parameters
     ----------
-    grad : complex ndarray (n_fields, ny, nx)
+    mesh : Mesh
+        The grid the rays are booked on (matrix columns are its cells).
+    grad : complex ndarray (n_fields, ny, nx), or list of complex 2-D arrays
         Time gradients dT/dx + i dT/dz from :func:`time_gradient`, s/m (one complex
         array halves the gathers per step; single precision is plenty for a ray
-        direction).
+        direction): on ``mesh``'s forward nodes, or each on a window of them (a list,
+        with ``columns``).
     sources : ndarray (n_fields, 2)
         Field origins (x, z), m.
     radii : ndarray (n_fields,)
@@ -167,21 +170,24 @@ def trace_many(mesh, grad, sources, radii, starts, which, keep_paths=False, step
     ground_only : bool
         Matrix columns for the ground cells only (in row-major order of
         ``mesh.ground``, as the inversion's unknowns) instead of all cells.
+    columns : sequence of int, optional
+        For a list ``grad``: the forward-node column of ``mesh`` where each field's
+        window begins (windows start at the grid's top row; :meth:`Mesh.window`). A ray
+        stays in its field's window, as it stays in the grid.
 
     Returns
     -------
     Rays
         Rows in the order of ``starts``.
     """
-    h = mesh.h
     step = float(mesh.refine if step is None else step)
-    steps = _march(mesh, grad, sources, radii, starts, which, step * h, keep_paths)
+    steps = _march(mesh, _Fields(mesh, grad, columns), sources, radii, starts, which, step * mesh.h, keep_paths)
     if ground_only:
-        columns = np.full(mesh.ground.size, -1)
-        columns[mesh.ground.ravel()] = np.arange(int(mesh.ground.sum()))
+        cols = np.full(mesh.ground.size, -1)
+        cols[mesh.ground.ravel()] = np.arange(int(mesh.ground.sum()))
     else:
-        columns = np.arange(mesh.ground.size)
-    booker = _CellBooking(mesh, booking, columns)
+        cols = np.arange(mesh.ground.size)
+    booker = _CellBooking(mesh, booking, cols)
     n = starts.shape[0]
     length = _book(booker, steps, step, n)
     out_paths = [np.array(q) for q in steps.paths] if keep_paths else None
@@ -203,25 +209,50 @@ class _Steps:
     unfinished: int = 0
 
 
-def _march(mesh, grad, sources, radii, starts, which, ds, keep_paths):
+class _Fields:
+    """Gradient fields for the ray march, each on a window of ``mesh``'s forward nodes
+    (the whole of them for a 3-D array): one flat array, and per field where its nodes
+    begin in it, its node rows and columns, and its window's edges (m)."""
+
+    def __init__(self, mesh, grad, columns=None):
+        if isinstance(grad, np.ndarray) and grad.ndim == 3:
+            n, ny, nx = grad.shape
+            self.flat = grad.reshape(-1)
+            self.base = np.arange(n) * (ny * nx)
+            self.ny, self.nx = np.full(n, ny), np.full(n, nx)
+            col0 = np.zeros(n, int)
+        else:
+            shapes = np.array([g.shape for g in grad], int).reshape(-1, 2)
+            self.flat = np.concatenate([np.ravel(g) for g in grad]) if len(grad) else np.zeros(0, np.complex64)
+            sizes = shapes[:, 0] * shapes[:, 1]
+            self.base = np.concatenate([[0], np.cumsum(sizes)[:-1]]).astype(int)
+            self.ny, self.nx = shapes[:, 0], shapes[:, 1]
+            col0 = np.zeros(len(grad), int) if columns is None else np.asarray(columns, int)
+        h = mesh.h
+        self.x_lo = mesh.x0 + col0 * h
+        self.x_hi = self.x_lo + (self.nx - 1) * h
+        self.z_lo = mesh.z_top - (self.ny - 1) * h
+
+
+def _march(mesh, fields, sources, radii, starts, which, ds, keep_paths):
     """Step every ray down its field's time gradient by ``ds`` (m) until it is within its
-    start circle (or a step) of the source; the rays still travelling are kept compact."""
+    start circle (or a step) of the source; the rays still travelling are kept compact,
+    each within its field's window."""
     h = mesh.h
-    ny, nx = mesh.node_shape
     n = starts.shape[0]
     which = np.asarray(which, int)
     pos = np.array(starts, float)
     src = np.asarray(sources, float)[which]
     # finish inside the exactly-timed circle, or within a step of the source
     finish = np.maximum(np.asarray(radii, float)[which], ds)
-    terrain = mesh.terrain
-    x_lo, x_hi, z_lo, top = mesh.x0, mesh.x1, mesh.z_bottom, mesh.z_top
-    flat_g = np.asarray(grad).reshape(-1)
+    terrain, top, flat_g = mesh.terrain, mesh.z_top, fields.flat
     dist0 = np.hypot(pos[:, 0] - src[:, 0], pos[:, 1] - src[:, 1])
     # a ray is rarely more than about twice as long as the straight line (common practice)
     max_steps = int(np.ceil(3.0 * (dist0.max(initial=0.0) + ds) / ds)) + 20
     out = _Steps([], [], [], [], [], [], [[q.copy()] for q in pos] if keep_paths else None)
-    ids, p, s, fin, base = np.arange(n), pos.copy(), src.copy(), finish.copy(), which * (ny * nx)
+    ids, p, s, fin = np.arange(n), pos.copy(), src.copy(), finish.copy()
+    base, nx, ny = fields.base[which], fields.nx[which], fields.ny[which]
+    x_lo, x_hi, z_lo = fields.x_lo[which], fields.x_hi[which], fields.z_lo[which]
     for count in range(max_steps + 1):
         if ids.size == 0:
             break
@@ -235,7 +266,8 @@ def _march(mesh, grad, sources, radii, starts, which, ds, keep_paths):
                 for r, q in zip(ids[done], s[done]):
                     out.paths[r].append(q.copy())
             keep = ~done
-            ids, p, s, fin, base = ids[keep], p[keep], s[keep], fin[keep], base[keep]
+            ids, p, s, fin, base, nx, ny = ids[keep], p[keep], s[keep], fin[keep], base[keep], nx[keep], ny[keep]
+            x_lo, x_hi, z_lo = x_lo[keep], x_hi[keep], z_lo[keep]
             if ids.size == 0:
                 break
         step_dir = _direction(flat_g, base, p, s, x_lo, top, h, nx, ny)
@@ -281,6 +313,9 @@ def _book(booker, steps, step, n):
     order = np.argsort(rows_s, kind="stable")
     a = np.concatenate(steps.seg_from) if steps.seg_from else np.zeros((0, 2))
     b = np.concatenate(steps.seg_to) if steps.seg_to else np.zeros((0, 2))
+    # the per-step pieces are copied now: free them (a long line's steps are large)
+    steps.seg_from.clear()
+    steps.seg_to.clear()
     sub = max(int(np.ceil(step / PIECE - 1e-9)), 1)
     frac = (np.arange(sub) + 0.5) / sub
     length = np.zeros(n)

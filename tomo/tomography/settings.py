@@ -10,7 +10,7 @@ from dataclasses import asdict, dataclass, fields
 
 from ..core.defaults import DEFAULT_SIGMA_MS
 from ..core.errors import InputError
-from .forward import DEFAULT_SOURCE_RADIUS
+from .fields import DEFAULT_SOURCE_RADIUS
 from .rays import BOOKINGS, DEFAULT_BOOKING, DEFAULT_STEP
 
 __all__ = ["InversionSettings", "DEFAULT_SIGMA_MS"]
@@ -86,6 +86,11 @@ class InversionSettings:
         How ray lengths are shared among forward nodes (``tomo.tomography.rays``).
     reciprocity : bool
         Solve fields from the geophones when there are fewer geophones than shots.
+    windows : bool
+        Solve each field on its window of the grid, proved to hold every first-arrival
+        ray of its picks (:mod:`tomo.tomography.windows`; same times to the solver's
+        precision, in time proportional to the line's length); False solves every field
+        on the whole grid (to check the windows).
     """
 
     max_iterations: int = 20
@@ -111,6 +116,7 @@ class InversionSettings:
     ray_step: float | None = DEFAULT_STEP
     ray_booking: str = DEFAULT_BOOKING
     reciprocity: bool = True
+    windows: bool = True
 
     def check(self):
         """Raise InputError naming the setting when a value is out of range; returns self."""

@@ -18,9 +18,9 @@ import os
 from concurrent.futures import ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 
-from ..core.errors import SolverError
+from ..core.errors import InputError, SolverError
 
-__all__ = ["Workers", "usable_workers"]
+__all__ = ["Workers", "usable_workers", "check_workers"]
 
 
 def usable_workers(requested, n_tasks=None):
@@ -77,3 +77,19 @@ class Workers:
         if self._pool is not None:
             self._pool.shutdown(wait=True, cancel_futures=True)
             self._pool = None
+
+
+def check_workers(n, field="workers"):
+    """Refuse a worker count below 1 or above this machine's cores (InputError naming
+    ``field``); returns it as an int."""
+    cores = os.cpu_count() or 1
+    try:
+        value = int(n)
+    except (TypeError, ValueError):
+        raise InputError(f"{field} must be a whole number of processes, got {n!r}", field=field) from None
+    if value != n or value < 1:
+        raise InputError(f"{field} = {n!r}: at least 1 worker process is needed", field=field)
+    if value > cores:
+        raise InputError(f"{field} = {value}: this machine has {cores} core(s); use 1 to {cores} "
+                         "(more processes than cores only compete for them)", field=field)
+    return value
