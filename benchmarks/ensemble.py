@@ -64,7 +64,7 @@ def calibrate(name, members, workers, seed=1, keep=None):
     survey = read_survey(picks, terrain=model.terrain)
     t0 = time.perf_counter()
     out = None if keep is None else Path(keep) / f"ensemble-{name}.h5"
-    run = ensemble(survey, members=members, workers=workers, seed=seed, out=out)
+    run = ensemble(survey, members=members, workers=workers, seed=seed, out=out, contour_m_s=contour)
     wall = time.perf_counter() - t0
     return score(name, run, model, contour, wall, members)
 

@@ -6,8 +6,10 @@ the picks directly, in the spirit of most-squares inversion (Jackson 1976, "Most
 squares inversion", J. Geophys. Res. 81, 1027-1030; Meju 1994, Geophysical Data
 Analysis, SEG, ch. 5): push the surface at one column as deep (or as shallow) as it goes
 while the misfit stays within a tolerance of its minimum. Here a push is an inversion
-of the picks from the central model with one point constraint holding the surface at
-the trial depth at that column (``tomo.tomography.constraints``, the rows boreholes use),
+of the picks from the central model with point constraints holding the surface flat at
+the trial depth across one station spacing either side of that column
+(``tomo.tomography.constraints``, the rows boreholes use; a push at one point alone is
+met by a pocket narrower than the rays resolve, which bounds nothing),
 and the trial depth is stepped out from the central surface (one cell, then doubling)
 until the picks refuse it, then bisected. The tolerance is two standard deviations of
 chi2 for n picks, 2 sqrt(2/n) (the chi-squared distribution's variance is 2n), above the
@@ -27,6 +29,7 @@ from dataclasses import asdict, dataclass, field, replace
 import numpy as np
 
 from ..analysis.surface import contour_surface
+from ..survey.geometry import station_spacing
 from ..tomography.constraints import ContourPoints
 from ..tomography.inversion import invert
 
@@ -78,6 +81,7 @@ class BoundTask:
     x: float
     direction: int
     chi2_limit: float
+    half_width_m: float = 0.0
 
 
 def bound_columns(surface, extra_x=()):
@@ -95,9 +99,15 @@ def bound_columns(surface, extra_x=()):
 def _push(task, depth):
     """chi2 of the picks with the surface held at ``depth`` (m) under ``task.x``."""
     mesh = task.mesh
-    ground = float(mesh.terrain.elevation(task.x, extrapolate=True))
-    points = ContourPoints(np.array([task.x]), np.array([ground - depth]), np.array([mesh.cell / 4.0]),
-                           np.array([task.velocity_m_s]), ("bound",))
+    # the surface is held flat across a station spacing either side: a push narrower than
+    # the rays can resolve (a pocket the first arrivals go round) tells nothing, and bounds
+    # exist only for averages over resolvable widths (Oldenburg 1983, J. Geophys. Res. 88)
+    k = max(int(round(task.half_width_m / mesh.cell)), 0)
+    xs = task.x + mesh.cell * np.arange(-k, k + 1)
+    xs = xs[(xs > mesh.x0) & (xs < mesh.x1)]
+    ground = mesh.terrain.elevation(xs, extrapolate=True)
+    points = ContourPoints(xs, ground - depth, np.full(xs.size, mesh.cell / 4.0),
+                           np.full(xs.size, task.velocity_m_s), tuple(f"bound {i}" for i in range(xs.size)))
     settings = replace(task.settings, workers=1, max_iterations=BOUND_ITERATIONS)
     run = invert(task.picks, mesh, task.central.velocity, settings, points=points)
     reached = contour_surface(run, task.velocity_m_s).depth_m
@@ -146,7 +156,8 @@ def compute_bounds(central, picks, mesh, settings, velocity_m_s, xs, workers=1, 
     from .ensemble import run_tasks
 
     limit = float(central.chi2) + chi2_tolerance(len(picks))
-    tasks = [BoundTask(picks, mesh, central, settings, float(velocity_m_s), float(x), d, limit)
+    width = station_spacing(picks)
+    tasks = [BoundTask(picks, mesh, central, settings, float(velocity_m_s), float(x), d, limit, width)
              for x in xs for d in (1, -1)]
     found = {}
 
