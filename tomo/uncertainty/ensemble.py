@@ -22,7 +22,7 @@ from __future__ import annotations
 import time as _time
 import uuid
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -256,7 +256,8 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
     # reach the cluster before any work: a wrong address fails at once, with nothing written
     client, cluster = dask_client(workers, scheduler) if (scheduler or workers > 1) and len(todo) > 1 else (None, None)
     try:
-        _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client)
+        _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client,
+                     1 if scheduler else max(int(workers), 1))
     finally:
         if client is not None:
             client.close()
@@ -267,12 +268,16 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
     return ensemble
 
 
-def _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client):
+def _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client,
+                 shot_workers=1):
     if todo and todo[0].index == 0:
         # the central member first, here: its run is the file's, its computed times are
         # what the other members' picks are redrawn around, and a line the inversion
-        # cannot handle fails once, with its own message, before any cluster starts
-        report(0, run_member(_tasks(todo[:1], picks, mesh, settings, layered, gradient, smoothing_cells)[0]), None)
+        # cannot handle fails once, with its own message, before any member is sent out.
+        # Nothing else runs meanwhile, so its shots are solved on all the local cores
+        # (the inversion's results do not depend on its worker count)
+        first = _tasks(todo[:1], picks, mesh, settings, layered, gradient, smoothing_cells)[0]
+        report(0, run_member(replace(first, shot_workers=shot_workers)), None)
         todo = todo[1:]
     predicted_s = np.asarray(ensemble.central.picks["computed_ms"], float) * 1e-3
     tasks = _tasks(todo, picks, mesh, settings, layered, gradient, smoothing_cells, predicted_s)

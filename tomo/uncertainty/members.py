@@ -159,6 +159,9 @@ class MemberTask:
     layered: object = None
     gradient: tuple | None = None
     smoothing_cells: float = 2.0
+    #: processes for the member's own shot solves: the central member runs alone, before
+    #: the others, and uses them all; the rest run one to a worker
+    shot_workers: int = 1
 
 
 @dataclass
@@ -203,10 +206,10 @@ def _start_velocity(task, mesh):
     return np.where(mesh.ground, v0 * fv + k * fk * np.maximum(mesh.depth, 0.0), np.nan)
 
 
-def _member_settings(settings, spec):
+def _member_settings(settings, spec, workers=1):
     root = math.sqrt(spec.ratio_factor)
     return replace(settings, smooth_x=settings.smooth_x * root, smooth_z=settings.smooth_z / root,
-                   chi2_target=spec.chi2_target, workers=1)
+                   chi2_target=spec.chi2_target, workers=workers)
 
 
 def resample_cells(source_x, source_z, values, target_x, target_z):
@@ -234,7 +237,7 @@ def run_member(task):
                  else np.full(len(picks), task.settings.default_sigma_ms * 1e-3))
         picks = picks.with_times(task.predicted_s + rng.normal(0.0, 1.0, len(picks)) * sigma, sigma)
     mesh = shifted_mesh(task.mesh, spec.shift_x, spec.shift_z)
-    run = invert(picks, mesh, _start_velocity(task, mesh), _member_settings(task.settings, spec))
+    run = invert(picks, mesh, _start_velocity(task, mesh), _member_settings(task.settings, spec, task.shot_workers))
     observed = np.asarray(task.picks.time_s, float) * 1e3
     chi2 = float(np.mean(((observed - run.picks["computed_ms"]) / run.picks["sigma_ms"]) ** 2))
     base = task.mesh
