@@ -162,7 +162,7 @@ def test_the_band_is_the_members_percentiles():
         surface_band(run, 99999.0)
 
 
-def test_an_extremal_bound_brackets_the_central_surface_within_the_tolerance(survey, local):
+def test_an_extremal_bound_brackets_the_central_surface_within_the_tolerance(survey, local, tmp_path):
     # Most-squares reasoning (Jackson 1976, J. Geophys. Res. 81): every push the bound
     # accepted fits the picks within chi2_min + 2 sqrt(2/n) (two standard deviations of
     # the mean chi2 of n picks), the bound lies on the accepted side of the first refused
@@ -182,6 +182,15 @@ def test_an_extremal_bound_brackets_the_central_surface_within_the_tolerance(sur
     band = run.band(1200.0) if bounds[0]["velocity_m_s"] == 1200.0 else run.band(bounds[0]["velocity_m_s"])
     j = int(np.argmin(np.abs(band.x - bounds[0]["x"])))
     assert band.depth_low_m[j] <= bounds[0]["shallow_m"] + 1e-9 and band.depth_high_m[j] >= bounds[0]["deep_m"] - 1e-9
+    # the surface export says which method set the band's edges, column by column
+    from tomo.results.export import write_surface
+
+    path = tmp_path / "surface.csv"
+    write_surface(path, run, band.velocity_m_s)
+    rows = [line.split(",") for line in path.read_text().splitlines() if not line.startswith("#")]
+    column = rows[0].index("band_from")
+    assert rows[1 + j][column] == "members + extremal bound"
+    assert {r[column] for r in rows[1:]} == {"members", "members + extremal bound"}
 
 
 def test_the_command_refuses_bad_requests_in_one_line(survey, tmp_path, capsys):

@@ -12,10 +12,12 @@ Surface file (CSV, one row per model column)::
 
 or, for an ensemble file (``tomo ensemble``)::
 
-    x,ground_z,depth_m,depth_low_m,depth_high_m,elevation_m,constrained[,easting,northing]
+    x,ground_z,depth_m,depth_low_m,depth_high_m,elevation_m,constrained,band_from[,easting,northing]
 
 with ``depth_m`` the members' median and ``depth_low_m``, ``depth_high_m`` the 5-95 %
-band (:mod:`tomo.uncertainty.bands`).
+band (:mod:`tomo.uncertainty.bands`); ``band_from`` says which method set the band's
+edges in that column: ``members`` (their 5-95 % range) or ``members + extremal bound``
+(widened by a most-squares bound, :mod:`tomo.uncertainty.bounds`).
 
 ``depth_m`` is vertical, below the ground at ``x``; ``elevation_m`` the elevation of
 the first place, going down from the ground, where the model reaches the chosen
@@ -92,10 +94,11 @@ def write_surface(path, run, velocity_m_s, source=None, surface=None):
                 f"{f' from {source}' if source else ''}: depth vertical below ground (m), "
                 "empty where not reached; constrained = 1 where rays cross it\n")
         f.write("x,ground_z,depth_m," + ("depth_low_m,depth_high_m," if band else "") + "elevation_m,constrained"
-                + (",easting,northing\n" if on_map else "\n"))
+                + (",band_from" if band else "") + (",easting,northing\n" if on_map else "\n"))
         for k in range(surface["x"].size):
             f.write(f"{surface['x'][k]:.3f},{surface['ground_z'][k]:.3f},{_fmt(surface['depth_m'][k], 3)},"
                     + (f"{_fmt(surface.depth_low_m[k], 3)},{_fmt(surface.depth_high_m[k], 3)}," if band else "")
                     + f"{_fmt(surface['elevation_m'][k], 3)},{int(surface['constrained'][k])}"
+                    + (f",{surface.bounded_by[k]}" if band else "")
                     + (f",{_fmt(easting[k], 3)},{_fmt(northing[k], 3)}\n" if on_map else "\n"))
     return surface

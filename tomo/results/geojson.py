@@ -16,7 +16,8 @@ Features (``properties.kind``):
 - ``surface``: Point per model column (or geophone, for a layered refractor) where the
   surface is reached within the surveyed line: ``surface`` (its key), ``velocity_m_s``,
   ``distance_m``, ``ground_elevation_m``, ``depth_m``, ``elevation_m``, ``constrained``
-  and, with a band, ``depth_low_m`` / ``depth_high_m`` (shallower / deeper edge).
+  and, with a band, ``depth_low_m`` / ``depth_high_m`` (shallower / deeper edge) and, for an
+  ensemble, ``band_from`` (which method set the band: members, or members + extremal bound).
 - ``borehole``: Point per borehole: ``label``, ``depth_m``, ``elevation_m``,
   ``sigma_m``, ``distance_m``, ``offset_m``; at its own easting and northing when the
   file gave them, else on the line.
@@ -86,6 +87,8 @@ def _surface_features(st, surface):
         if surface.has_band:
             p["depth_low_m"] = _num(surface.ground_z[k] - surface.high_elevation_m[k])
             p["depth_high_m"] = _num(surface.ground_z[k] - surface.low_elevation_m[k])
+        if surface.band_from is not None:
+            p["band_from"] = str(surface.band_from[k])
         props.append(p)
     return _points(st.crs, e[keep], n[keep], props)
 

@@ -43,6 +43,9 @@ class SectionSurface:
     low_elevation_m, high_elevation_m : ndarray or None
         The band around the surface (a delay-time refractor's one sigma, an ensemble's
         5-95 % range), or None.
+    band_from : ndarray of str or None
+        Per column, which method set the band (an ensemble's ``members`` or ``members +
+        extremal bound``), or None.
     """
 
     key: str
@@ -55,6 +58,7 @@ class SectionSurface:
     constrained: np.ndarray
     low_elevation_m: np.ndarray | None = None
     high_elevation_m: np.ndarray | None = None
+    band_from: np.ndarray | None = None
 
     @property
     def has_band(self):
@@ -83,7 +87,7 @@ def section_surfaces(run, contours_m_s):
             out.append(SectionSurface(f"contour-{value:.0f}", f"{value:.0f} m/s iso-velocity surface, median of "
                                       f"{b.n_members} members with their 5-95 % band", float(value), b.x, b.ground_z,
                                       b.depth_m, b.elevation_m, b.constrained, b.ground_z - b.depth_high_m,
-                                      b.ground_z - b.depth_low_m))
+                                      b.ground_z - b.depth_low_m, b.bounded_by))
             continue
         s = contour_surface(run, value)
         out.append(SectionSurface(f"contour-{value:.0f}", f"{value:.0f} m/s iso-velocity surface of the tomogram",
