@@ -10,14 +10,16 @@ gaining 6 m/s per m whose top undulates between 8 and 29 m deep (periods of 700 
 260 m). Its picks are forward-modelled by tomo on a grid with cells half as large as
 the inversion's, plus 0.5 ms Gaussian noise (seeded), and kept in a cache folder.
 
-Each line is inverted by ``tomo.api.invert`` as ``tomo invert --start gradient`` would
+Each line is inverted by ``tomo.api.invert`` as ``tomo invert`` would (``--start`` as given)
 (default mesh: cells of half the spacing, the grid's depth from the starting model's
 rays), in a process of its own so that its peak memory is its own. Printed per line:
 picks, iterations, wall seconds per iteration in forward solves, ray tracing and
 least-squares solves, total wall time, peak memory (the main process plus the largest
 worker times the workers), the cost in seconds per 1,000 picks per iteration, and the
 total over the forward solves it needs (its passes times one plain forward pass in a
-running pool); the estimate told before the run is printed beside what happened.
+running pool; ``/forward`` with the planning, i.e. the starting model, the depth probe
+and the estimate, ``loop/fwd`` the inversion's iterations alone); the estimate told
+before the run is printed beside what happened.
 ``--compare`` also solves the 1.2 km line's fields on the whole grid and inverts it
 with windows off: every pick's time and every constrained cell's final velocity
 against the windowed ones.
@@ -97,7 +99,7 @@ def synthetic(length, workers):
     return read_picks(path, terrain=terrain(length))
 
 
-def one_line(length, workers, windows=True):
+def one_line(length, workers, windows=True, start="layered"):
     """Invert one line in this process; returns what the table needs (JSON-ready)."""
     import tomo
     from tomo.analysis.raypaths import run_mesh
@@ -108,7 +110,8 @@ def one_line(length, workers, windows=True):
 
     picks = synthetic(length, workers)
     survey = Survey(picks, terrain(length))
-    rows, plans, last = [], [], {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "pass_wall_s": 0.0, "passes": 0}
+    rows, plans, loop = [], [], {"s": 0.0}
+    last = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "pass_wall_s": 0.0, "passes": 0}
 
     def progress(info):
         d = {k: info.timing[k] - last[k] for k in last}
@@ -116,10 +119,11 @@ def one_line(length, workers, windows=True):
         cpu = d["forward_s"] + d["rays_s"]
         share = d["pass_wall_s"] / cpu if cpu > 0 else 0.0  # worker CPU seconds scaled to the passes' wall time
         rows.append([info.iteration, d["passes"], d["forward_s"] * share, d["rays_s"] * share, d["solve_s"]])
+        loop["s"] = info.elapsed_s  # the inversion itself, from its first pass (no planning)
         print(f"  ({length / 1000:g} km) {info}", file=sys.stderr, flush=True)
 
     t0 = time.perf_counter()
-    run = tomo.invert(survey, start="gradient", progress=progress, on_plan=plans.append, workers=workers,
+    run = tomo.invert(survey, start=start, progress=progress, on_plan=plans.append, workers=workers,
                       windows=windows)
     total = time.perf_counter() - t0
     mesh = run_mesh(run)
@@ -136,7 +140,7 @@ def one_line(length, workers, windows=True):
     child_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
     estimate = plans[0].estimate
     return {"length_km": length / 1000, "picks": len(picks), "iterations": run.iterations, "chi2": run.chi2,
-            "stop": run.stop_reason, "total_s": total, "rows": rows, "passes": last["passes"],
+            "stop": run.stop_reason, "total_s": total, "loop_s": loop["s"], "rows": rows, "passes": last["passes"],
             "plain_pass_s": min(plain), "main_mb": main_mb, "child_mb": child_mb, "workers": workers,
             "mesh": plans[0].mesh, "depth": plans[0].depth, "estimate": estimate.describe(),
             "estimate_iteration_s": estimate.iteration_s, "estimate_mb": estimate.memory_bytes / 1e6,
@@ -144,7 +148,7 @@ def one_line(length, workers, windows=True):
             "coverage": run.coverage.tolist() if length <= 1200 else None}
 
 
-def compare(workers):
+def compare(workers, start="layered"):
     """The 1.2 km line: windowed against whole-grid times on every pick, and inversions."""
     from tomo.tomography.forward import travel_times
     from tomo.tomography.mesh import mesh_for_picks
@@ -158,8 +162,8 @@ def compare(workers):
     worst = float(np.max(np.abs(windowed - whole)) * 1e3)
     print(f"\n1.2 km line, the true model on the inversion's grid: windowed and whole-grid times differ by at "
           f"most {worst:.2e} ms over {len(picks)} picks (goal 0.02 ms)")
-    a = _in_own_process(length, workers, True)
-    b = _in_own_process(length, workers, False)
+    a = _in_own_process(length, workers, True, start)
+    b = _in_own_process(length, workers, False, start)
     va, vb, cov = np.array(a["velocity"]), np.array(b["velocity"]), np.array(a["coverage"])
     constrained = np.isfinite(va) & (cov > 0)
     diff = np.abs(va - vb)[constrained] / vb[constrained]
@@ -168,9 +172,10 @@ def compare(workers):
           f"difference {100 * diff.max():.3f} % over {constrained.sum()} constrained cells (goal 1 %)")
 
 
-def _in_own_process(length, workers, windows=True):
+def _in_own_process(length, workers, windows=True, start="layered"):
     out = Path(tempfile.mkstemp(suffix=".json")[1])
-    cmd = [sys.executable, __file__, "--one", str(length), "--workers", str(workers), "--json", str(out)]
+    cmd = [sys.executable, __file__, "--one", str(length), "--workers", str(workers), "--json", str(out),
+           "--start", start]
     if not windows:
         cmd.append("--whole")
     subprocess.run(cmd, check=True)
@@ -181,7 +186,7 @@ def _in_own_process(length, workers, windows=True):
 
 def table(results):
     print(f"\n{'km':>4} {'picks':>7} {'iter':>4} {'chi2':>6} {'fwd s/it':>8} {'rays s/it':>9} {'solve s/it':>10} "
-          f"{'total s':>8} {'peak MB':>8} {'s/1k picks/it':>13} {'/forward':>8}")
+          f"{'total s':>8} {'peak MB':>8} {'s/1k picks/it':>13} {'/forward':>8} {'loop/fwd':>8}")
     for r in results:
         rows = np.array(r["rows"][1:], float).reshape(-1, 5)
         n = max(len(rows), 1)
@@ -189,8 +194,10 @@ def table(results):
         per_it = r["total_s"] / max(r["iterations"], 1)
         peak = r["main_mb"] + r["workers"] * r["child_mb"]
         ratio = r["total_s"] / (r["passes"] * r["plain_pass_s"])
+        loop = r["loop_s"] / (r["passes"] * r["plain_pass_s"])
         print(f"{r['length_km']:>4g} {r['picks']:>7} {r['iterations']:>4} {r['chi2']:>6.3f} {fwd:>8.1f} {rays:>9.1f} "
-              f"{solve:>10.1f} {r['total_s']:>8.0f} {peak:>8.0f} {1000 * per_it / r['picks']:>13.3f} {ratio:>8.2f}")
+              f"{solve:>10.1f} {r['total_s']:>8.0f} {peak:>8.0f} {1000 * per_it / r['picks']:>13.3f} {ratio:>8.2f} "
+              f"{loop:>8.2f}")
     for r in results:
         print(f"\n{r['length_km']:g} km: {r['mesh']}\n  depth {r['depth']}\n  {r['estimate']}\n  "
               f"measured: {r['total_s'] / max(r['iterations'], 1):.1f} s per iteration (estimated "
@@ -202,23 +209,25 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("lengths", nargs="*", type=float, default=list(LENGTHS_KM), help="line lengths, km")
     parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--start", choices=["layered", "gradient"], default="layered",
+                        help="starting model, as tomo invert --start (default layered, as tomo invert's)")
     parser.add_argument("--compare", action="store_true", help="windowed against whole-grid on the 1.2 km line")
     parser.add_argument("--one", type=float, help=argparse.SUPPRESS)  # a line in this process (m)
     parser.add_argument("--json", help=argparse.SUPPRESS)
     parser.add_argument("--whole", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.one is not None:
-        result = one_line(args.one, args.workers, windows=not args.whole)
+        result = one_line(args.one, args.workers, windows=not args.whole, start=args.start)
         Path(args.json).write_text(json.dumps(result))
         return
     print(f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores", flush=True)
     results = []
     for km in args.lengths:
         synthetic(km * 1000.0, args.workers)  # made (and cached) outside the timed process
-        results.append(_in_own_process(km * 1000.0, args.workers))
+        results.append(_in_own_process(km * 1000.0, args.workers, start=args.start))
     table(results)
     if args.compare:
-        compare(args.workers)
+        compare(args.workers, args.start)
     print(f"\nload average {os.getloadavg()[0]:.1f} at the end")
 
 

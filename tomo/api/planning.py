@@ -140,10 +140,13 @@ def plan_run(picks: Any, picks_path: str | None, terrain: Any, spec: MeshSpec, u
 
     Returns the grid, its spec, ``start_for(grid)`` and the :class:`RunPlan`.
     """
+    estimates: list[RunEstimate] = []
+
     def checked(grid: Mesh) -> tuple[Any, Any, str, list[str]]:
         built = start_for(grid)
         build_problem(picks, grid, built[0], settings)
-        check_estimate(estimate_run(grid, picks, built[0], settings), grid, picks_path)
+        estimates.append(estimate_run(grid, picks, built[0], settings))
+        check_estimate(estimates[-1], grid, picks_path)
         return built
 
     least = None
@@ -154,4 +157,4 @@ def plan_run(picks: Any, picks_path: str | None, terrain: Any, spec: MeshSpec, u
         below = boreholes.depth_m - (ground - float(first.ground_surface.min()))
         least = float(np.max(below)) + 2.0 * first.cell
     grid, spec, built, why = plan_grid(picks, terrain, spec, user_depth, checked, settings, least)
-    return grid, spec, built, RunPlan(grid.describe(), why, estimate_run(grid, picks, built[0], settings))
+    return grid, spec, built, RunPlan(grid.describe(), why, estimates[-1])  # the last grid's
