@@ -172,3 +172,24 @@ def test_progress_bars_on_a_terminal_and_one_line_per_iteration_elsewhere(gradie
     assert "\r" not in err
     progress = [line for line in err.splitlines() if line.startswith(("start:", "iteration "))]
     assert len(progress) == tomo.read_run(out).iterations + 1
+
+
+def test_the_depth_probe_is_the_inversions_first_pass(tmp_path):
+    # Where the first guess holds the rays (10 m of 500 m/s over 2000 m/s: the head waves
+    # run 10 m deep, the guess is 46.7 m), the probe's pass of the starting model is the
+    # inversion's first: the same run to the last bit as one that solves it again.
+    from helpers import head_wave_times
+
+    from tomo.analysis.raypaths import run_mesh
+    from tomo.tomography.inversion import InversionSettings, invert
+
+    layout = line_picks(TERRAIN, np.arange(0.0, 140.1, 4.0), [0.0, 70.0, 140.0])
+    t = head_wave_times(layout.receiver_x - layout.source_x, [500.0, 2000.0], [10.0])
+    t = t + np.random.default_rng(4).normal(0.0, 0.5e-3, t.size)
+    path = tmp_path / "picks.csv"
+    write_picks(path, layout.with_times(t, np.full(t.size, 0.5e-3)))
+    survey, plans = tomo.read_survey(path), []
+    run = tomo.invert(survey, max_iterations=1, workers=1, on_plan=plans.append)
+    assert plans[0].start_pass is not None and "deep enough" in plans[0].depth
+    again = invert(survey.picks, run_mesh(run), run.start_velocity, InversionSettings(max_iterations=1, workers=1))
+    np.testing.assert_array_equal(again.velocity, run.velocity)

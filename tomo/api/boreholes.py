@@ -67,20 +67,20 @@ def tied_layers(survey: Survey, terrain: Any, layers: LayeredResult | None, bran
 def invert_with_boreholes(survey: Survey, grid: Mesh, terrain: Any, velocity: Any, opts: InversionSettings,
                           progress: Callable[[IterationInfo], object], checkpoint: Any, layered: Any,
                           notes: list[str], extra: dict[str, Any], placed: Boreholes | None,
-                          contour_m_s: float | None, pass_progress: Callable[[Any], object] | None = None) -> Any:
+                          contour_m_s: float | None, **passes: Any) -> Any:
     """The inversion (:func:`tomo.tomography.inversion.invert`); with boreholes, the run
     without them and the run with them (returned, and written), with the comparison of
-    the two in ``borehole_fit``."""
+    the two in ``borehole_fit``; ``passes`` (``pass_progress``, ``start_pass``) go to each run."""
     if placed is None:
         return invert(survey.picks, grid, velocity, opts, progress=progress, checkpoint=checkpoint,
-                      layered=layered, notes=notes, extra_settings=extra, pass_progress=pass_progress)
+                      layered=layered, notes=notes, extra_settings=extra, **passes)
     from ..analysis.borehole_fit import fit_boreholes
     from ..tomography.borehole_runs import contour_points, invert_twice
 
     points = contour_points(placed, grid, survey.picks, layered, terrain, contour_m_s)
     extra = dict(extra, boreholes_file=placed.path, borehole_contours_m_s=[float(v) for v in points.velocity_m_s])
     free, data = invert_twice(survey.picks, grid, velocity, opts, points, progress=progress, checkpoint=checkpoint,
-                              layered=layered, notes=notes, extra_settings=extra, pass_progress=pass_progress)
+                              layered=layered, notes=notes, extra_settings=extra, **passes)
     data.borehole_fit = fit_boreholes(free, data, points, opts.chi2_tolerance)
     if checkpoint is not None:
         checkpoint(data)  # once more, with the comparison

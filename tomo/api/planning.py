@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -45,11 +45,15 @@ class RunPlan:
         The grid's depth and why it was chosen.
     estimate : RunEstimate
         Memory and time (``estimate.describe()`` is one line).
+    start_pass : PassResult or None
+        The starting model's pass with rays on this grid, when the depth probe made it
+        (the inversion takes it as its first pass instead of solving it again).
     """
 
     mesh: str
     depth: str
     estimate: RunEstimate
+    start_pass: Any = field(default=None, repr=False)
 
     def lines(self) -> list[str]:
         return [f"mesh: {self.mesh}", f"depth: {self.depth}", self.estimate.describe()]
@@ -70,12 +74,15 @@ def check_estimate(estimate: RunEstimate, grid: Mesh, picks_path: str | None) ->
                      f"million ray-matrix entries): {way}, or fewer workers", path=picks_path, field="cell_m")
 
 
-def _probe(grid: Mesh, velocity: Any, picks: Any, settings: InversionSettings) -> DepthCheck:
-    """The depth check of the starting model's rays: one forward pass with rays."""
-    slowness = np.where(grid.ground, 1.0 / np.where(grid.ground, velocity, 1.0), 0.0)
+def _probe(grid: Mesh, velocity: Any, picks: Any, settings: InversionSettings) -> tuple[DepthCheck, Any]:
+    """The depth check of the starting model's rays and its pass: one forward pass with
+    rays of the model exactly as the inversion starts from it (so that the inversion can
+    take the pass as its first)."""
+    problem = build_problem(picks, grid, velocity, settings)
+    v = problem.velocity_grid(problem.m_start)
     with Workers(settings.workers) as pool:
-        res = forward_pass(grid, slowness, picks, settings, pool, rays=True)
-    return check_depth(grid, res.matrix)
+        res = forward_pass(grid, np.where(grid.ground, 1.0 / v, 0.0), picks, settings, pool, rays=True)
+    return check_depth(grid, res.matrix), res
 
 
 def _deeper(spec: MeshSpec, check: DepthCheck, cell: float) -> float:
@@ -88,31 +95,32 @@ def _deeper(spec: MeshSpec, check: DepthCheck, cell: float) -> float:
 
 def plan_grid(picks: Any, terrain: Any, spec: MeshSpec, user_depth: bool, start_for: StartFor,
               settings: InversionSettings, least_depth_m: float | None = None
-              ) -> tuple[Mesh, MeshSpec, tuple[Any, Any, str, list[str]], str]:
+              ) -> tuple[Mesh, MeshSpec, tuple[Any, Any, str, list[str]], str, Any]:
     """The grid of an inversion and its starting model: as deep as the spec says when the
     user set the depth, else the first guess (a third of the longest offset) made deeper
     where the starting model's rays need it (:mod:`tomo.tomography.depth`: below the
     deepest ray with room), and never shallower than ``least_depth_m`` (m below the
     lowest ground: boreholes).
 
-    Returns the grid, its spec, ``start_for(grid)`` and the depth in words.
+    Returns the grid, its spec, ``start_for(grid)``, the depth in words and the starting
+    model's pass with rays on the grid (None unless the last probe was on it).
     """
     grid, spec = mesh_for_picks(picks, terrain, spec)
     built = start_for(grid)
     if user_depth:
-        return grid, spec, built, f"{spec.depth_m:g} m below the lowest ground, as the mesh spec sets"
+        return grid, spec, built, f"{spec.depth_m:g} m below the lowest ground, as the mesh spec sets", None
     first = float(spec.depth_m or 0.0)
     least = 0.0 if least_depth_m is None else math.ceil(least_depth_m / grid.cell - 1e-9) * grid.cell
-    check = None
+    check, probe = None, None
     for _ in range(MAX_PROBES):
-        check = _probe(grid, built[0], picks, settings)
+        check, probe = _probe(grid, built[0], picks, settings)
         current = float(spec.depth_m or 0.0)
         depth = max(_deeper(spec, check, grid.cell), least)
         if not check.reached_bottom and depth <= current:
             # room enough: a grid deeper than the rays need is kept (the model changes as
             # the run goes on, and the first guess is what runs before this rule had)
             break
-        spec = replace(spec, depth_m=max(depth, current))
+        spec, probe = replace(spec, depth_m=max(depth, current)), None
         grid, spec = mesh_for_picks(picks, terrain, spec)
         built = start_for(grid)
         if not check.reached_bottom:
@@ -127,7 +135,7 @@ def plan_grid(picks: Any, terrain: Any, spec: MeshSpec, user_depth: bool, start_
                f"starting model {check.describe(picks)}")
     if least and depth_m <= least + 1e-9:
         why += f"; {least:g} m holds the deepest borehole with two cells below it"
-    return grid, spec, built, why
+    return grid, spec, built, why, probe
 
 
 def plan_run(picks: Any, picks_path: str | None, terrain: Any, spec: MeshSpec, user_depth: bool,
@@ -156,5 +164,5 @@ def plan_run(picks: Any, picks_path: str | None, terrain: Any, spec: MeshSpec, u
         ground = first.terrain.elevation(boreholes.x, extrapolate=True)
         below = boreholes.depth_m - (ground - float(first.ground_surface.min()))
         least = float(np.max(below)) + 2.0 * first.cell
-    grid, spec, built, why = plan_grid(picks, terrain, spec, user_depth, checked, settings, least)
-    return grid, spec, built, RunPlan(grid.describe(), why, estimates[-1])  # the last grid's
+    grid, spec, built, why, probe = plan_grid(picks, terrain, spec, user_depth, checked, settings, least)
+    return grid, spec, built, RunPlan(grid.describe(), why, estimates[-1], probe)  # the last grid's estimate

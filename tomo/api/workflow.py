@@ -261,7 +261,7 @@ def _log_progress(info: IterationInfo) -> None:
 def _plan(survey: Survey, terrain: Any, mesh: PathLike | MeshSpec | None, start: str, layers: LayeredResult | None,
           branches: int | None, smoothing: float, notes: list[str], opts: InversionSettings,
           on_plan: Callable[[RunPlan], object] | None, boreholes: PathLike | Boreholes | None,
-          contour_m_s: float | None) -> tuple[Mesh, MeshSpec, Any, Any, str, str | None, Boreholes | None]:
+          contour_m_s: float | None) -> tuple[Mesh, MeshSpec, Any, Any, str, str | None, Boreholes | None, RunPlan]:
     """The boreholes placed on the line (the layered start tied to them), the grid and
     the starting model on it (:func:`tomo.api.planning.plan_run`: the depth from the
     starting model's rays unless the spec sets it, the estimate refused when it cannot
@@ -291,7 +291,7 @@ def _plan(survey: Survey, terrain: Any, mesh: PathLike | MeshSpec | None, start:
     if placed is not None:
         placed = placed.check_depths(grid.terrain.elevation(placed.x, extrapolate=True), grid.z_bottom)
     mesh_file = None if mesh is None or isinstance(mesh, MeshSpec) else str(mesh)
-    return grid, spec, velocity, layered, used, mesh_file, placed
+    return grid, spec, velocity, layered, used, mesh_file, placed, plan
 
 
 def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
@@ -376,7 +376,7 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     notes = list(survey.notices)
     terrain, ground_notes = survey.ground()
     notes += ground_notes
-    grid, spec, velocity, layered, start_used, mesh_file, placed = _plan(
+    grid, spec, velocity, layered, start_used, mesh_file, placed, plan = _plan(
         survey, terrain, mesh, start, layers, branches, smoothing, notes, opts, on_plan, boreholes, contour_m_s)
     extra = {"start": start_used, "start_requested": start, "layered_branches": branches,
              "start_smoothing_cells": smoothing if start_used == "layered" else None,
@@ -389,7 +389,8 @@ def invert(survey: Survey, start: Literal["layered", "gradient"] = "layered",
     # the stations are not the inversion's business but go into every run file written
     checkpoint = None if out is None else RunWriter(out, stations=survey.stations, boreholes=placed)
     data = invert_with_boreholes(survey, grid, terrain, velocity, opts, progress or _log_progress, checkpoint,
-                                 layered, notes, extra, placed, contour_m_s, pass_progress)
+                                 layered, notes, extra, placed, contour_m_s, pass_progress=pass_progress,
+                                 start_pass=plan.start_pass)
     data.stations = survey.stations
     data.boreholes = placed
     return Run.from_data(data)

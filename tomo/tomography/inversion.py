@@ -235,10 +235,6 @@ class State:
     pending: bool = False  # a borehole row's weight was just raised: the run goes on
 
 
-def _rms_ms(r):
-    return float(np.sqrt(np.mean(r ** 2)) * 1e3)
-
-
 class _Evaluator:
     """Forward passes of trial models, with their cost booked in ``timing``."""
 
@@ -249,8 +245,12 @@ class _Evaluator:
     def __call__(self, m, rays=False):
         p = self.problem
         v = p.velocity_grid(m)
-        res = forward_pass(p.mesh, np.where(p.mesh.ground, 1.0 / v, 0.0), p.picks, p.settings, self.workers, rays,
-                           progress=self.meter.callback("fields"))
+        return self.book(forward_pass(p.mesh, np.where(p.mesh.ground, 1.0 / v, 0.0), p.picks, p.settings,
+                                      self.workers, rays, progress=self.meter.callback("fields")))
+
+    def book(self, res):
+        """A pass's cost into ``timing``; returns it with its residuals (s) and chi2."""
+        p = self.problem
         self.timing["forward_s"] += res.forward_s
         self.timing["rays_s"] += res.rays_s
         self.timing["pass_wall_s"] += res.wall_s
@@ -468,7 +468,7 @@ def snapshot(problem, state, stop_reason="", converged=False):
 def _record(problem, state, step):
     h = state.history
     solves = step.solves if step else []
-    for key, value in (("chi2", state.chi2), ("rms_ms", _rms_ms(state.r)),
+    for key, value in (("chi2", state.chi2), ("rms_ms", float(np.sqrt(np.mean(state.r ** 2)) * 1e3)),
                        ("lambda", step.lam if step else float("nan")), ("step", step.alpha if step else 0.0),
                        ("predicted_chi2", step.predicted if step else float("nan")),
                        ("roughness", problem.roughness(state.m)),
@@ -480,7 +480,8 @@ def _record(problem, state, step):
 # --- the run ----------------------------------------------------------------------------
 
 def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint=None, layered=None,
-           notes=None, extra_settings=None, reference_velocity=None, points=None, pass_progress=None):
+           notes=None, extra_settings=None, reference_velocity=None, points=None, pass_progress=None,
+           start_pass=None):
     """Invert first-arrival picks for a gridded velocity model (see module docstring).
 
     Parameters
@@ -501,12 +502,9 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint
         Called with the :class:`RunData` of the starting model and of every finished
         iteration, and of the last one again when the run is interrupted (e.g.
         :class:`tomo.results.runfile.RunWriter`, which rewrites a run file atomically).
-    layered : dict, optional
-        Layered interpretation used for the start, stored with the run.
-    notes : list of str, optional
-        Notes stored with the run.
-    extra_settings : dict, optional
-        More entries for the recorded settings (start kind, mesh spec, files).
+    layered, notes, extra_settings : dict, list of str, dict, optional
+        Stored with the run: the layered interpretation used for the start, notes, and
+        more entries for the recorded settings (start kind, mesh spec, files).
     reference_velocity : ndarray (nz, nx), optional
         Reference model m_r of the objective, m/s (default: none).
     points : ContourPoints, optional
@@ -514,12 +512,13 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint
         (:mod:`tomo.tomography.constraints`): extra weighted rows of every update,
         outside the picks' chi2.
     pass_progress : callable, optional
-        Called with a :class:`tomo.tomography.meter.PassProgress` as the fields and
-        rays of each iteration get done (for a progress bar).
+        Called with a :class:`~tomo.tomography.meter.PassProgress` as each iteration's
+        fields and rays get done (for a progress bar).
+    start_pass : PassResult, optional
+        The starting model's pass with rays on ``mesh`` with these settings (the depth
+        probe of ``tomo.api.planning``), taken instead of solving it again.
 
-    Returns
-    -------
-    RunData
+    Returns a :class:`RunData`.
     """
     problem = build_problem(picks, mesh, start_velocity, settings, reference_velocity, notes, extra_settings,
                             layered, points)
@@ -528,15 +527,16 @@ def invert(picks, mesh, start_velocity, settings=None, progress=None, checkpoint
     # the cores with the worker processes made the solves 15 times slower (measured on
     # the demo line: 4.1 s against 0.26 s for 14 solves)
     with threadpool_limits(1, user_api="blas"), Workers(s.workers) as workers:
-        return _run(problem, workers, progress, checkpoint, Meter(pass_progress, origin_kind(picks, s.reciprocity)))
+        return _run(problem, workers, progress, checkpoint, Meter(pass_progress, origin_kind(picks, s.reciprocity)),
+                    start_pass)
 
 
-def _run(problem, workers, progress, checkpoint, meter=None):
+def _run(problem, workers, progress, checkpoint, meter=None, start_pass=None):
     s = problem.settings
     t_begin = _time.perf_counter()
     timing = {"forward_s": 0.0, "rays_s": 0.0, "solve_s": 0.0, "passes": 0, "pass_wall_s": 0.0}
     evaluate = _Evaluator(problem, workers, timing, meter)
-    res, r, chi2 = evaluate(problem.m_start, rays=True)
+    res, r, chi2 = evaluate(problem.m_start, rays=True) if start_pass is None else evaluate.book(start_pass)
     state = State(problem.m_start.copy(), res, r, chi2, timing=timing,
                   penalty=None if problem.points is None else PointPenalty(problem.points))
     _record(problem, state, None)
