@@ -20,7 +20,9 @@ Goals (issue 11): the band holds the truth in at least 80 % of the constrained c
 of every line, with a median width at most 25 % of the depth; at the channel axis the
 band reaches the true depth.
 
-Run: ``python benchmarks/ensemble.py [channel trough weathered] [--members 32] [--workers 2]``.
+Run: ``python benchmarks/ensemble.py [channel trough weathered] [--members 32] [--workers 2]``;
+``--borehole X`` (repeatable) adds a borehole at X m logging the true rock (sigma 0.3 m)
+that every member honours, ``--no-bounds`` leaves out the extremal bounds.
 
 ``--speed`` runs the demo line's ensemble (32 members, no extremal bounds) on 1 and on 2
 workers instead, and prints the wall times, their ratio and whether the two runs' band
@@ -32,6 +34,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -59,12 +62,20 @@ def _weathered():
 LINES["weathered"] = _weathered
 
 
-def calibrate(name, members, workers, seed=1, keep=None):
+def calibrate(name, members, workers, seed=1, keep=None, boreholes=(), bounds=True):
     model, contour, picks, _ = make_line(name, seed)
     survey = read_survey(picks, terrain=model.terrain)
     t0 = time.perf_counter()
     out = None if keep is None else Path(keep) / f"ensemble-{name}.h5"
-    run = ensemble(survey, members=members, workers=workers, seed=seed, out=out, contour_m_s=contour)
+    path = None
+    if boreholes:
+        # boreholes logging the true rock, sigma 0.3 m, that every member honours
+        path = Path(tempfile.mkdtemp()) / "boreholes.csv"
+        rows = [f"{x:g},{float(model.layers[0].base_depth(np.array([x]))[0]):.3f},0.3,BH{k + 1}"
+                for k, x in enumerate(boreholes)]
+        path.write_text("x,depth_m,sigma_m,label\n" + "\n".join(rows) + "\n")
+    run = ensemble(survey, members=members, workers=workers, seed=seed, out=out, contour_m_s=contour,
+                   boreholes=path, bounds=bounds)
     wall = time.perf_counter() - t0
     return score(name, run, model, contour, wall, members)
 
@@ -123,10 +134,13 @@ def main(argv=None):
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--seed", type=int, default=1)
     parser.add_argument("--keep", metavar="DIR", help="write each line's ensemble file into DIR")
+    parser.add_argument("--borehole", metavar="X", type=float, action="append", default=[],
+                        help="a borehole at X m logging the true rock (sigma 0.3 m) that every member honours")
+    parser.add_argument("--no-bounds", action="store_true", help="the members' band alone")
     args = parser.parse_args(argv)
     rows = []
     for name in args.lines:
-        row = calibrate(name, args.members, args.workers, args.seed, args.keep)
+        row = calibrate(name, args.members, args.workers, args.seed, args.keep, args.borehole, not args.no_bounds)
         rows.append(row)
         print(f"  {name}: {row}", file=sys.stderr)
     print(f"\n{'line':>10} {'in band':>8} {'cols':>5} {'median width':>13} {'of depth':>8} {'largest':>8} "

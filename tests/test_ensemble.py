@@ -216,3 +216,25 @@ def test_the_command_refuses_bad_requests_in_one_line(survey, tmp_path, capsys):
     assert main(["export", str(out), "--contour", "99999", "--surface", str(tmp_path / "s.csv")]) == 2
     assert "outside the model's range" in capsys.readouterr().err
     assert not (tmp_path / "s.csv").exists() and run.ensemble.n_kept == 2
+
+
+def test_every_member_honours_a_borehole(survey, tmp_path):
+    # A borehole logging the refractor at x = 20 m 7.8 m deep, sigma 0.2 m (the model has
+    # it at 6 + 2 * 20 / 46 = 6.87 m; the members of the same ensemble without the
+    # borehole put their 1000 m/s surface, the geometric mean of the two layers'
+    # velocities, at 7.1-7.2 m there, measured): with it, every member's surface passes
+    # within two sigmas of the borehole, as a single constrained run does (point
+    # constraints, Lelievre & Oldenburg 2009, Geophys. J. Int. 178).
+    from tomo.analysis.surface import contour_surface
+
+    path = tmp_path / "boreholes.csv"
+    path.write_text("x,depth_m,sigma_m,label\n20,7.8,0.2,BH1\n")
+    run = ensemble(survey, members=4, seed=3, workers=1, start="gradient", mesh=MESH, boreholes=path,
+                   contour_m_s=1000.0, **FEW)
+    assert run.boreholes is not None and list(run.boreholes.label) == ["BH1"]
+    assert run.settings["borehole_contours_m_s"] == [1000.0]
+    record = run.ensemble
+    j = int(np.argmin(np.abs(run.x - 20.0)))
+    for v in record.velocity[record.kept]:
+        depth = contour_surface(replace(run, velocity=v, ensemble=None), 1000.0).depth_m[j]
+        assert depth == pytest.approx(7.8, abs=2 * 0.2)

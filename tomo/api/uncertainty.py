@@ -11,6 +11,7 @@ from ..core.errors import InputError, TomoError
 from ..layered.interpret import interpret_line
 from ..layered.result import LayeredResult
 from ..results.run import Run
+from ..survey.boreholes import Boreholes
 from ..survey.meshspec import MeshSpec
 from ..survey.survey import Survey
 from .workflow import PathLike, _check_start, _mesh, _settings, read_layers
@@ -24,7 +25,7 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
              mesh: PathLike | MeshSpec | None = None,
              progress: Callable[[int, int, float, float | None], object] | None = None, *,
              bounds: bool = True, bound_x: Sequence[float] = (), contour_m_s: float | None = None,
-             **settings: Any) -> Run:
+             boreholes: PathLike | Boreholes | None = None, **settings: Any) -> Run:
     """An ensemble of inversions of a survey: the range of models the picks allow.
 
     Members differ in the pick noise, the starting model, the smoothing ratio, the chi2
@@ -57,7 +58,12 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     bound_x : sequence of float
         More columns to bound, m along the line.
     contour_m_s : float, optional
-        Velocity of the bounded surface (default: the layered refractor's contour).
+        Velocity of the bounded surface (default: the layered refractor's contour), and
+        of the surface the boreholes lie on.
+    boreholes : path or Boreholes, optional
+        Boreholes every member (and every extremal push) honours, as :func:`invert` does
+        (point constraints beside the picks): the band is then conditional on them, and
+        the layered start is tied to them.
     start, layers, mesh, **settings
         As for :func:`invert`.
     """
@@ -78,16 +84,29 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
             layered = interpret_line(survey.picks, terrain=terrain)
         except TomoError as exc:
             notes.append(f"layered starting model not available ({exc}); members start from the gradient")
+    placed, points, extra_boreholes = None, None, {}
+    if boreholes is not None:
+        from ..tomography.borehole_runs import contour_points
+        from .boreholes import grid_boreholes, tied_layers
+
+        placed = grid_boreholes(survey, grid, boreholes, None)
+        assert placed is not None  # boreholes were given
+        if start == "layered":
+            layered = tied_layers(survey, terrain, layered, None, placed, opts.default_sigma_ms) or layered
+        points = contour_points(placed, grid, survey.picks, layered, terrain, contour_m_s).check(grid)
+        extra_boreholes = {"boreholes_file": placed.path,
+                           "borehole_contours_m_s": [float(v) for v in points.velocity_m_s]}
     fit = fit_gradient(survey.picks)
     done, central = _resumed(out, ens, survey) if resume else ((), None)
     extra = {"start": "layered" if layered is not None else "gradient", "mesh_spec": spec.as_dict(),
-             "picks_file": survey.picks_path, "terrain_file": survey.terrain_path}
+             "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,
+             **extra_boreholes}
 
     def keep(result: Any) -> Run:
         run = Run.from_data(result.central)
         run.settings = {**extra, **run.settings}
         run.notes = list(dict.fromkeys(list(survey.notices) + notes + list(run.notes)))
-        run.stations, run.ensemble = survey.stations, record_of(result)
+        run.stations, run.ensemble, run.boreholes = survey.stations, record_of(result), placed
         if layered is not None and start == "layered":
             run.layered = layered.to_dict()
         if out is not None:
@@ -98,17 +117,17 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     result = run_ensemble(survey.picks, grid, opts, ens, layered if start == "layered" else None,
                           (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers, scheduler,
                           done=member_results(central.ensemble) if central is not None else done,
-                          central=central, progress=progress, on_member=keep)
+                          central=central, progress=progress, on_member=keep, points=points)
     run = keep(result)
     if bounds or bound_x:
-        run = _with_bounds(run, result, survey, grid, opts, contour_m_s, bound_x, workers, scheduler)
+        run = _with_bounds(run, result, survey, grid, opts, contour_m_s, bound_x, workers, scheduler, points)
         if out is not None:
             run.write(out)
     return run
 
 
 def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, contour_m_s: float | None,
-                 bound_x: Sequence[float], workers: int, scheduler: str | None) -> Run:
+                 bound_x: Sequence[float], workers: int, scheduler: str | None, points: Any = None) -> Run:
     """``run`` with extremal bounds of its surface (:mod:`tomo.uncertainty.bounds`)."""
     from ..analysis.surface import check_contour
     from ..uncertainty.bands import default_band_contour
@@ -116,7 +135,7 @@ def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, co
 
     value = check_contour(run, default_band_contour(run) if contour_m_s is None else contour_m_s)
     xs = bound_columns(run.band(value), bound_x)
-    found = compute_bounds(result.central, survey.picks, grid, opts, value, xs, workers, scheduler)
+    found = compute_bounds(result.central, survey.picks, grid, opts, value, xs, workers, scheduler, points)
     record: Any = run.ensemble
     record.bounds = [b.to_dict() for b in found]
     return run

@@ -46,6 +46,10 @@ def register(sub):
     p.add_argument("--bound-x", metavar="X", type=float, action="append", default=[],
                    help="also push the surface as deep and as shallow as the picks allow at X m (repeatable); "
                         "its deepest and shallowest points are always bounded")
+    p.add_argument("--boreholes", metavar="B.csv",
+                   help="boreholes (x or easting,northing, depth_m, optional sigma_m, label, interface) every "
+                        "member honours: the --contour surface (default: the mean of the layer velocities above "
+                        "and below each logged interface) passes through each within its sigma")
     p.add_argument("--no-bounds", action="store_true",
                    help="skip the extremal bounds (each costs about a dozen inversions)")
     p.add_argument("--sigma-ms", metavar="MS", type=float,
@@ -77,7 +81,7 @@ def run(args):
     run_ = api.ensemble(survey, members=args.members, seed=args.seed, workers=args.workers, scheduler=args.scheduler,
                         out=args.out, resume=args.resume, start=args.start, layers=args.layers, mesh=args.mesh,
                         progress=_progress("ensemble"), bounds=not args.no_bounds, bound_x=args.bound_x,
-                        contour_m_s=args.contour, **settings)
+                        contour_m_s=args.contour, boreholes=args.boreholes, **settings)
     for line in api.ensemble_summary(run_, args.contour):
         print(line)
     note("The band is what these members allow under the method's assumptions (a smooth 2-D model, first "

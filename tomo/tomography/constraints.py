@@ -183,18 +183,6 @@ def _crossing(z, v, target):
     return float(z[k - 1] + (target - v[k - 1]) / (v[k] - v[k - 1]) * (z[k] - z[k - 1]))
 
 
-def _at_elevation(z, z0):
-    """(indices, weights) interpolating a column with centres at elevations ``z`` (m,
-    top down) linearly at ``z0``; the end value beyond the ends."""
-    if z0 >= z[0] or z.size == 1:
-        return [0], [1.0]
-    if z0 <= z[-1]:
-        return [z.size - 1], [1.0]
-    k = int(np.flatnonzero(z < z0)[0])
-    t = (z[k - 1] - z0) / (z[k - 1] - z[k])
-    return [k - 1, k], [1.0 - t, t]
-
-
 def surface_elevation(mesh, m, points, parameter):
     """Each point's surface (its velocity's iso-velocity surface) at its x, elevation m,
     read from model ``m`` as :func:`tomo.analysis.surface.contour_surface` reads a run

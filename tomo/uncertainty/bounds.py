@@ -82,6 +82,8 @@ class BoundTask:
     direction: int
     chi2_limit: float
     half_width_m: float = 0.0
+    #: boreholes every push honours too (ContourPoints), as the ensemble's members do
+    fixed: object = None
 
 
 def bound_columns(surface, extra_x=()):
@@ -108,6 +110,10 @@ def _push(task, depth):
     ground = mesh.terrain.elevation(xs, extrapolate=True)
     points = ContourPoints(xs, ground - depth, np.full(xs.size, mesh.cell / 4.0),
                            np.full(xs.size, task.velocity_m_s), tuple(f"bound {i}" for i in range(xs.size)))
+    if task.fixed is not None and len(task.fixed):
+        f = task.fixed
+        points = ContourPoints(*(np.concatenate([getattr(f, a), getattr(points, a)])
+                                 for a in ("x", "z", "sigma_m", "velocity_m_s")), tuple(f.label) + points.label)
     settings = replace(task.settings, workers=1, max_iterations=BOUND_ITERATIONS)
     run = invert(task.picks, mesh, task.central.velocity, settings, points=points)
     reached = contour_surface(run, task.velocity_m_s).depth_m
@@ -146,18 +152,19 @@ def extremal_bound(task):
     return good, tests
 
 
-def compute_bounds(central, picks, mesh, settings, velocity_m_s, xs, workers=1, scheduler=None):
+def compute_bounds(central, picks, mesh, settings, velocity_m_s, xs, workers=1, scheduler=None, fixed=None):
     """Extremal bounds of the ``velocity_m_s`` surface at every x in ``xs`` (m), deeper
     and shallower, as tasks on the ensemble's workers; a list of :class:`ExtremalBound`.
 
     ``central`` is the central member's run (its model is every push's start and its
-    chi2 the minimum the tolerance is added to).
+    chi2 the minimum the tolerance is added to); ``fixed`` are boreholes (ContourPoints)
+    every push honours as the members did.
     """
     from .ensemble import run_tasks
 
     limit = float(central.chi2) + chi2_tolerance(len(picks))
     width = station_spacing(picks)
-    tasks = [BoundTask(picks, mesh, central, settings, float(velocity_m_s), float(x), d, limit, width)
+    tasks = [BoundTask(picks, mesh, central, settings, float(velocity_m_s), float(x), d, limit, width, fixed)
              for x in xs for d in (1, -1)]
     found = {}
 

@@ -148,9 +148,9 @@ def dask_client(workers=None, scheduler=None):
     return Client(cluster), cluster
 
 
-def _tasks(specs, picks, mesh, settings, layered, gradient, smoothing, predicted_s=None):
+def _tasks(specs, picks, mesh, settings, layered, gradient, smoothing, predicted_s=None, points=None):
     return [MemberTask(spec, picks, mesh, predicted_s, settings, layered if spec.start == "layered" else None,
-                       gradient, smoothing) for spec in specs]
+                       gradient, smoothing, points=points) for spec in specs]
 
 
 def run_tasks(func, tasks, keys, report, workers=1, scheduler=None, client=None):
@@ -191,7 +191,7 @@ def run_tasks(func, tasks, keys, report, workers=1, scheduler=None, client=None)
 
 
 def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradient=None, smoothing_cells=2.0,
-                 workers=1, scheduler=None, done=(), central=None, progress=None, on_member=None):
+                 workers=1, scheduler=None, done=(), central=None, progress=None, on_member=None, points=None):
     """Run the members of an ensemble that are not ``done`` yet.
 
     Parameters
@@ -223,6 +223,9 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
     on_member : callable, optional
         Called with the :class:`Ensemble` so far after every member (e.g. to rewrite the
         ensemble file, so an interrupted run keeps what it finished).
+    points : ContourPoints, optional
+        Boreholes every member honours (rows beside the picks, as in
+        :func:`tomo.tomography.inversion.invert`), so that the band is conditional on them.
 
     Returns
     -------
@@ -257,7 +260,7 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
     client, cluster = dask_client(workers, scheduler) if (scheduler or workers > 1) and len(todo) > 1 else (None, None)
     try:
         _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client,
-                     1 if scheduler else max(int(workers), 1))
+                     1 if scheduler else max(int(workers), 1), points)
     finally:
         if client is not None:
             client.close()
@@ -269,18 +272,18 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
 
 
 def _run_members(todo, picks, mesh, settings, layered, gradient, smoothing_cells, ensemble, report, client,
-                 shot_workers=1):
+                 shot_workers=1, points=None):
     if todo and todo[0].index == 0:
         # the central member first, here: its run is the file's, its computed times are
         # what the other members' picks are redrawn around, and a line the inversion
         # cannot handle fails once, with its own message, before any member is sent out.
         # Nothing else runs meanwhile, so its shots are solved on all the local cores
         # (the inversion's results do not depend on its worker count)
-        first = _tasks(todo[:1], picks, mesh, settings, layered, gradient, smoothing_cells)[0]
+        first = _tasks(todo[:1], picks, mesh, settings, layered, gradient, smoothing_cells, points=points)[0]
         report(0, run_member(replace(first, shot_workers=shot_workers)), None)
         todo = todo[1:]
     predicted_s = np.asarray(ensemble.central.picks["computed_ms"], float) * 1e-3
-    tasks = _tasks(todo, picks, mesh, settings, layered, gradient, smoothing_cells, predicted_s)
+    tasks = _tasks(todo, picks, mesh, settings, layered, gradient, smoothing_cells, predicted_s, points)
     run_tasks(run_member, tasks, [t.spec.index for t in tasks], report, client=client)
 
 

@@ -162,6 +162,8 @@ class MemberTask:
     #: processes for the member's own shot solves: the central member runs alone, before
     #: the others, and uses them all; the rest run one to a worker
     shot_workers: int = 1
+    #: boreholes every member honours (``tomo.tomography.constraints.ContourPoints``)
+    points: object = None
 
 
 @dataclass
@@ -237,7 +239,8 @@ def run_member(task):
                  else np.full(len(picks), task.settings.default_sigma_ms * 1e-3))
         picks = picks.with_times(task.predicted_s + rng.normal(0.0, 1.0, len(picks)) * sigma, sigma)
     mesh = shifted_mesh(task.mesh, spec.shift_x, spec.shift_z)
-    run = invert(picks, mesh, _start_velocity(task, mesh), _member_settings(task.settings, spec, task.shot_workers))
+    run = invert(picks, mesh, _start_velocity(task, mesh), _member_settings(task.settings, spec, task.shot_workers),
+                 points=task.points)
     observed = np.asarray(task.picks.time_s, float) * 1e3
     chi2 = float(np.mean(((observed - run.picks["computed_ms"]) / run.picks["sigma_ms"]) ** 2))
     base = task.mesh
