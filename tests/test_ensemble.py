@@ -200,9 +200,13 @@ def test_the_command_refuses_bad_requests_in_one_line(survey, tmp_path, capsys):
     picks = tmp_path / "picks.csv"
     write_picks(picks, survey.picks)
     out = tmp_path / "ens.h5"
+    far = tmp_path / "far.csv"
+    far.write_text("x,depth_m,label\n500,8,BH9\n")  # beyond the line's last geophone
     cases = [(["--members", "1"], "at least 2 members"),
              (["--scheduler", "tcp://127.0.0.1:9"], "could not reach the Dask scheduler"),
-             (["--workers", "0"], "--workers must be 1 or more")]
+             (["--workers", "0"], "--workers must be 1 or more"),
+             (["--boreholes", str(tmp_path / "none.csv")], "none.csv"),
+             (["--boreholes", str(far)], "BH9")]
     for extra, message in cases:
         t0 = time.perf_counter()
         status = main(["ensemble", str(picks), "--out", str(out), "--start", "gradient", "--no-bounds", *extra])
