@@ -84,18 +84,8 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
             layered = interpret_line(survey.picks, terrain=terrain)
         except TomoError as exc:
             notes.append(f"layered starting model not available ({exc}); members start from the gradient")
-    placed, points, extra_boreholes = None, None, {}
-    if boreholes is not None:
-        from ..tomography.borehole_runs import contour_points
-        from .boreholes import grid_boreholes, tied_layers
-
-        placed = grid_boreholes(survey, grid, boreholes, None)
-        assert placed is not None  # boreholes were given
-        if start == "layered":
-            layered = tied_layers(survey, terrain, layered, None, placed, opts.default_sigma_ms) or layered
-        points = contour_points(placed, grid, survey.picks, layered, terrain, contour_m_s).check(grid)
-        extra_boreholes = {"boreholes_file": placed.path,
-                           "borehole_contours_m_s": [float(v) for v in points.velocity_m_s]}
+    placed, points, layered, extra_boreholes = _boreholes(survey, grid, terrain, layered, start, boreholes,
+                                                          contour_m_s, opts.default_sigma_ms)
     fit = fit_gradient(survey.picks)
     done, central = _resumed(out, ens, survey) if resume else ((), None)
     extra = {"start": "layered" if layered is not None else "gradient", "mesh_spec": spec.as_dict(),
@@ -124,6 +114,26 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
         if out is not None:
             run.write(out)
     return run
+
+
+def _boreholes(survey: Survey, grid: Any, terrain: Any, layered: LayeredResult | None, start: str,
+               boreholes: PathLike | Boreholes | None, contour_m_s: float | None,
+               sigma_ms: float) -> tuple[Boreholes | None, Any, LayeredResult | None, dict[str, Any]]:
+    """The boreholes every member honours: placed on the line and checked against the
+    grid, their contour points, the layered start tied to them, the run's settings
+    about them; (None, None, layered, {}) without boreholes."""
+    if boreholes is None:
+        return None, None, layered, {}
+    from ..tomography.borehole_runs import contour_points
+    from .boreholes import grid_boreholes, tied_layers
+
+    placed = grid_boreholes(survey, grid, boreholes, None)
+    assert placed is not None  # boreholes were given
+    if start == "layered":
+        layered = tied_layers(survey, terrain, layered, None, placed, sigma_ms) or layered
+    points = contour_points(placed, grid, survey.picks, layered, terrain, contour_m_s).check(grid)
+    return placed, points, layered, {"boreholes_file": placed.path,
+                                     "borehole_contours_m_s": [float(v) for v in points.velocity_m_s]}
 
 
 def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, contour_m_s: float | None,
