@@ -128,10 +128,10 @@ def plan_grid(picks: Any, terrain: Any, spec: MeshSpec, user_depth: bool, start_
     assert check is not None
     depth_m = float(spec.depth_m or 0.0)
     if depth_m > first + 1e-9:
-        why = (f"{spec.depth_m:g} m below the lowest ground, deeper than the first guess of {first:.1f} m (a third "
-               f"of the longest offset): in the starting model {check.describe(picks)}")
+        why = (f"{round(depth_m, 1):g} m below the lowest ground, deeper than the first guess of {first:.1f} m "
+               f"(a third of the longest offset): in the starting model {check.describe(picks)}")
     else:
-        why = (f"{spec.depth_m:g} m below the lowest ground (a third of the longest offset), deep enough: in the "
+        why = (f"{round(depth_m, 1):g} m below the lowest ground (a third of the longest offset), deep enough: in the "
                f"starting model {check.describe(picks)}")
     if least and depth_m <= least + 1e-9:
         why += f"; {least:g} m holds the deepest borehole with two cells below it"

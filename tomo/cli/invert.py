@@ -116,7 +116,8 @@ def run(args):
     finally:
         bars.close()
     for message in result.notes:
-        note(message)
+        if not message.startswith("grid depth "):  # told before the run (_print_plan); kept in the run file
+            note(message)
     print(f"wrote {args.out}: {result.iterations} iteration(s), chi2 {result.chi2:.3f}, "
           f"RMS {result.rms_ms:.3f} ms; stopped: {result.stop_reason}")
     if result.borehole_fit is not None:

@@ -119,6 +119,8 @@ def _size(n):
 
 
 def _duration(seconds):
+    if seconds < 10:
+        return f"{seconds:.1f} s"
     return f"{seconds:.0f} s" if seconds < 90 else f"{seconds / 60:.1f} min"
 
 
