@@ -7,14 +7,13 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any, Literal
 
-from ..core.errors import InputError, TomoError
-from ..layered.interpret import interpret_line
+from ..core.errors import InputError
 from ..layered.result import LayeredResult
 from ..results.run import Run
 from ..survey.boreholes import Boreholes
 from ..survey.meshspec import MeshSpec
 from ..survey.survey import Survey
-from .workflow import PathLike, _check_start, _mesh, _settings, read_layers
+from .workflow import PathLike, _check_start, _plan, _settings, read_layers
 
 __all__ = ["ensemble", "ensemble_summary"]
 
@@ -78,14 +77,14 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     if layers is not None:
         layered = layers if isinstance(layers, LayeredResult) else read_layers(layers, survey)
     terrain, notes = survey.ground()
-    grid, spec, _ = _mesh(survey, terrain, mesh)
-    if start == "layered" and layered is None:
-        try:
-            layered = interpret_line(survey.picks, terrain=terrain)
-        except TomoError as exc:
-            notes.append(f"layered starting model not available ({exc}); members start from the gradient")
-    placed, points, layered, extra_boreholes = _boreholes(survey, grid, terrain, layered, start, boreholes,
-                                                          contour_m_s, opts.default_sigma_ms)
+    # the grid, its depth and the layered start exactly as tomo invert chooses them, so
+    # the central member is the run tomo invert would make (the depth from the starting
+    # model's rays; boreholes placed and the start tied to them)
+    grid, spec, _, start_layers, _, _, placed, _ = _plan(survey, terrain, mesh, start, layered, None, smoothing,
+                                                         notes, opts, None, boreholes,
+                                                         None if boreholes is None else contour_m_s)
+    layered = LayeredResult.from_dict(start_layers) if isinstance(start_layers, dict) else start_layers
+    points, extra_boreholes = _borehole_points(survey, grid, terrain, layered, placed, contour_m_s)
     fit = fit_gradient(survey.picks)
     done, central = _resumed(out, ens, survey) if resume else ((), None)
     extra = {"start": "layered" if layered is not None else "gradient", "mesh_spec": spec.as_dict(),
@@ -116,24 +115,16 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     return run
 
 
-def _boreholes(survey: Survey, grid: Any, terrain: Any, layered: LayeredResult | None, start: str,
-               boreholes: PathLike | Boreholes | None, contour_m_s: float | None,
-               sigma_ms: float) -> tuple[Boreholes | None, Any, LayeredResult | None, dict[str, Any]]:
-    """The boreholes every member honours: placed on the line and checked against the
-    grid, their contour points, the layered start tied to them, the run's settings
-    about them; (None, None, layered, {}) without boreholes."""
-    if boreholes is None:
-        return None, None, layered, {}
+def _borehole_points(survey: Survey, grid: Any, terrain: Any, layered: LayeredResult | None,
+                     placed: Boreholes | None, contour_m_s: float | None) -> tuple[Any, dict[str, Any]]:
+    """The contour points of the boreholes every member honours and the run's settings
+    about them; (None, {}) without boreholes."""
+    if placed is None:
+        return None, {}
     from ..tomography.borehole_runs import contour_points
-    from .boreholes import grid_boreholes, tied_layers
 
-    placed = grid_boreholes(survey, grid, boreholes, None)
-    assert placed is not None  # boreholes were given
-    if start == "layered":
-        layered = tied_layers(survey, terrain, layered, None, placed, sigma_ms) or layered
     points = contour_points(placed, grid, survey.picks, layered, terrain, contour_m_s).check(grid)
-    return placed, points, layered, {"boreholes_file": placed.path,
-                                     "borehole_contours_m_s": [float(v) for v in points.velocity_m_s]}
+    return points, {"boreholes_file": placed.path, "borehole_contours_m_s": [float(v) for v in points.velocity_m_s]}
 
 
 def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, contour_m_s: float | None,
