@@ -217,7 +217,7 @@ class Mesh:
     def describe(self):
         return (f"{self.nx} x {self.nz} cells of {self.cell:g} m "
                 f"(x {self.x0:g} to {self.x1:g} m, elevation {self.z_bottom:g} to {self.z_top:g} m); "
-                f"forward grid {self.node_shape[1]} x {self.node_shape[0]} nodes at {self.h:g} m")
+                f"forward grid {self.node_shape[1]} x {self.node_shape[0]} nodes at {self.h:.3g} m")
 
     def as_dict(self):
         return {"x0": self.x0, "z_top": self.z_top, "cell": self.cell, "nx": self.nx,
