@@ -115,6 +115,15 @@ def test_an_interrupted_ensemble_is_completed_by_resume(survey, local, tmp_path)
     np.testing.assert_array_equal(run.ensemble.velocity, local[0].ensemble.velocity)
     with pytest.raises(InputError, match="same --members and --seed"):
         ensemble(survey, members=5, seed=3, workers=1, out=out, resume=True, start="gradient", mesh=MESH, **FEW)
+    # members made without boreholes, or on another grid, are not completed with others
+    boreholes = tmp_path / "boreholes.csv"
+    boreholes.write_text("x,depth_m,sigma_m,label\n20,7.8,0.2,BH1\n")
+    with pytest.raises(InputError, match="other boreholes"):
+        ensemble(survey, members=4, seed=3, workers=1, out=out, resume=True, start="gradient", mesh=MESH,
+                 boreholes=boreholes, contour_m_s=1000.0, **FEW)
+    with pytest.raises(InputError, match="other grid"):
+        ensemble(survey, members=4, seed=3, workers=1, out=out, resume=True, start="gradient",
+                 mesh=MeshSpec(cell_m=1.0, depth_m=15.0, refine=2), **FEW)
 
 
 def test_a_failing_member_is_reported_and_the_rest_kept(survey, monkeypatch):

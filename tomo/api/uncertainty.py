@@ -76,6 +76,7 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     layered: LayeredResult | None = None
     if layers is not None:
         layered = layers if isinstance(layers, LayeredResult) else read_layers(layers, survey)
+    resumed = _resumed(out, ens, survey) if resume else None  # before any work on the grid
     terrain, notes = survey.ground()
     # the grid, its depth and the layered start exactly as tomo invert chooses them, so
     # the central member is the run tomo invert would make (the depth from the starting
@@ -86,10 +87,12 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     layered = LayeredResult.from_dict(start_layers) if isinstance(start_layers, dict) else start_layers
     points, extra_boreholes = _borehole_points(survey, grid, terrain, layered, placed, contour_m_s)
     fit = fit_gradient(survey.picks)
-    done, central = _resumed(out, ens, survey) if resume else ((), None)
     extra = {"start": "layered" if layered is not None else "gradient", "mesh_spec": spec.as_dict(),
              "picks_file": survey.picks_path, "terrain_file": survey.terrain_path,
              **extra_boreholes}
+    if resumed is not None:
+        _check_same_setup(resumed, out, grid, extra)
+    done, central = (), resumed
 
     def keep(result: Any) -> Run:
         run = Run.from_data(result.central)
@@ -142,7 +145,7 @@ def _with_bounds(run: Run, result: Any, survey: Survey, grid: Any, opts: Any, co
     return run
 
 
-def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple[Any, ...], Run | None]:
+def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> Run:
     """The finished members of the ensemble file ``out``, checked against this request."""
     from ..analysis.digest import picks_digest
 
@@ -158,7 +161,30 @@ def _resumed(out: PathLike | None, ens: Any, survey: Survey) -> tuple[tuple[Any,
     if picks_digest(run.picks) != picks_digest(_picks_table(survey)):
         raise InputError("the ensemble file holds other picks than these (tomo ensemble --resume completes an "
                          "ensemble of the same picks)", path=out)
-    return (), run
+    return run
+
+
+def _check_same_setup(run: Run, out: PathLike | None, grid: Any, extra: dict[str, Any]) -> None:
+    """Refuse to complete an ensemble whose members were made on another grid or with
+    other boreholes than this request's: the band would mix members of two ensembles."""
+    import json
+
+    import numpy as np
+
+    def same(key: str) -> bool:
+        def text(v: Any) -> str:
+            return json.dumps(v, sort_keys=True, default=str)
+        return text(run.settings.get(key)) == text(extra.get(key))
+
+    for key, what in (("mesh_spec", "grid"), ("boreholes_file", "boreholes"),
+                      ("borehole_contours_m_s", "borehole contour velocities")):
+        if not same(key):
+            raise InputError(f"the ensemble file's members were made with other {what} than this request's "
+                             f"({run.settings.get(key)!r} against {extra.get(key)!r}); resume with the same options "
+                             "or start a new ensemble", path=out, field="--resume")
+    if np.shape(run.velocity) != (grid.nz, grid.nx):
+        raise InputError(f"the ensemble file's grid has {np.shape(run.velocity)} cells, this request's "
+                         f"{(grid.nz, grid.nx)}; start a new ensemble", path=out, field="--resume")
 
 
 def _picks_table(survey: Survey) -> dict[str, Any]:
