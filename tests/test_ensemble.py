@@ -251,3 +251,16 @@ def test_every_member_honours_a_borehole(survey, tmp_path):
     for v in record.velocity[record.kept]:
         depth = contour_surface(replace(run, velocity=v, ensemble=None), 1000.0).depth_m[j]
         assert depth == pytest.approx(7.8, abs=2 * 0.2)
+
+
+def test_the_central_member_is_the_run_tomo_invert_makes(survey):
+    # The ensemble chooses its grid (the depth from the starting model's rays), start and
+    # settings as tomo invert does (tomo.api.workflow._plan), so its central member, which
+    # draws nothing, is the same inversion: same grid, same model to the last bit.
+    from tomo.api import invert
+
+    spec = MeshSpec(cell_m=1.0, refine=2)  # no depth: planned from the rays
+    run = ensemble(survey, members=2, seed=3, workers=1, start="gradient", mesh=spec, **FEW)
+    single = invert(survey, start="gradient", mesh=spec, max_iterations=6)
+    assert run.velocity.shape == single.velocity.shape
+    np.testing.assert_array_equal(run.velocity, single.velocity)

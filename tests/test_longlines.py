@@ -22,8 +22,8 @@ from tomo.survey.terrain import flat_terrain
 from tomo.tomography import budget
 from tomo.tomography.meter import PassProgress
 
-#: v = V0 + K z, m/s and 1/s: a weak gradient whose diving waves turn deeper than a
-#: third of the offset.
+#: v = V0 + K z, m/s and 1/s: a strong gradient (K x / (2 V0) = 4.7 at 140 m) whose
+#: diving waves turn deeper than a third of the offset.
 V0, K = 300.0, 20.0
 TERRAIN = flat_terrain(-10.0, 150.0)
 

@@ -2,7 +2,7 @@
 
 The grid's depth is chosen from the model's own rays (tomo.tomography.depth): a third
 of the longest offset (47 m here) is only the first guess, too shallow for the diving
-waves of a weak gradient. Issue 12's goal: every time within 0.1 ms of the closed form.
+waves of a strong gradient. Issue 12's goal: every time within 0.1 ms of the closed form.
 Geophones every 2 m over two layers, so the default grid has 0.5 m cells with nodes
 1/12 m apart (tomo.tomography.synth.SYNTH_REFINE); every 4 m over the smooth gradient
 (nodes 1/6 m apart), which keeps the test quick.
@@ -30,7 +30,7 @@ def synth(tmp_path, model, capsys, *extra, spacing=2.0, shots=(0.0,)):
     return read_picks(out), err
 
 
-def test_diving_waves_of_a_weak_gradient_turn_inside_the_grid(tmp_path, capsys):
+def test_diving_waves_of_a_strong_gradient_turn_inside_the_grid(tmp_path, capsys):
     # v = v0 + k z: the first arrival on the surface is the diving wave
     # t = (2/k) asinh(k x / (2 v0)) (Slotnick 1959, Lessons in Seismic Computing, SEG;
     # REFERENCES.md), turning at z = (v0/k) (sqrt(1 + (k x / (2 v0))^2) - 1): 57 m at

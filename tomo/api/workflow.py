@@ -31,7 +31,7 @@ from ..survey.meshspec import MeshSpec, inversion_mesh_spec, read_mesh_spec
 from ..survey.survey import NO_TERRAIN_NOTE, Survey, read_survey
 from ..survey.units import DISTANCE_UNITS, TIME_UNITS
 from ..tomography.inversion import InversionInterrupted, InversionSettings, IterationInfo
-from ..tomography.mesh import Mesh, mesh_for_picks
+from ..tomography.mesh import Mesh
 from ..tomography.meter import PassProgress
 from ..tomography.starting import LAYERED_SMOOTHING_CELLS, check_smoothing, gradient_start, layered_start
 from ..tomography.workers import check_workers
@@ -205,14 +205,6 @@ def _settings(values: dict[str, Any]) -> InversionSettings:
         return InversionSettings.from_dict(values).check()
     except TypeError as exc:
         raise InputError(f"bad setting: {exc}") from None
-
-
-def _mesh(survey: Survey, terrain: Any, mesh: PathLike | MeshSpec | None) -> tuple[Mesh, MeshSpec, str | None]:
-    """The model grid from a mesh spec file, a MeshSpec or the survey's defaults."""
-    spec = mesh if isinstance(mesh, MeshSpec) else (read_mesh_spec(mesh) if mesh is not None else None)
-    spec = inversion_mesh_spec(station_spacing(survey.picks), spec)
-    grid, spec = mesh_for_picks(survey.picks, terrain, spec)
-    return grid, spec, (None if mesh is None or isinstance(mesh, MeshSpec) else str(mesh))
 
 
 def _check_start(start: str, layers: Any, branches: int | None, start_smoothing: float | None) -> float:

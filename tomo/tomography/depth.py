@@ -1,8 +1,9 @@
 """How deep the grid must be: below the deepest first-arrival ray of any pick, with room.
 
 A grid that stops above where a first-arrival ray turns makes that ray run along its
-bottom, and its time comes out late (a diving wave in a velocity gradient turns deeper
-than a third of its offset when the gradient is weak). The rule of a third of the
+bottom, and its time comes out late (a diving wave in v = V0 + K z turns deeper than a
+third of its offset x when the gradient is strong, K x / (2 V0) > 2.4, from its turning
+depth (V0/K)(sqrt(1 + (K x / 2 V0)^2) - 1); Slotnick 1959). The rule of a third of the
 longest offset (:func:`tomo.survey.meshspec.auto_mesh_spec`) is therefore only a first
 guess: the rays of that grid are traced, and the grid is made deep enough that its
 bottom lies below the deepest ray point by half of that point's depth below the ground

@@ -97,7 +97,8 @@ class Bounds:
     """The lower bound of travel times of one model (see module docstring).
 
     ``field`` is F(u, d), s, on nodes of spacing ``h`` (m): columns u = 0, h, 2h, ...;
-    rows d = -2h, -h, 0, h, ... below the ground. ``vertical`` is the time straight down
+    rows d = -3h, -2h, -h, 0, h, ... below the ground (row ``_SKIN_ROWS`` at the
+    ground). ``vertical`` is the time straight down
     at the least slowness, s, on the same rows (0 at the ground). ``kappa`` is the
     terrain's factor; ``reflection[i, k]`` a bound of the time of a surface-to-surface
     path of offset k ``reflection_step`` node spacings that touches the depth of F's row

@@ -6,8 +6,9 @@ the picks directly, in the spirit of most-squares inversion (Jackson 1976, "Most
 squares inversion", J. Geophys. Res. 81, 1027-1030; Meju 1994, Geophysical Data
 Analysis, SEG, ch. 5): push the surface at one column as deep (or as shallow) as it goes
 while the misfit stays within a tolerance of its minimum. Here a push is an inversion
-of the picks from the central model with point constraints holding the surface flat at
-the trial depth across one station spacing either side of that column
+of the picks from the central model with point constraints holding the surface at the
+trial depth below the ground (parallel to it) across one station spacing either side of
+that column
 (``tomo.tomography.constraints``, the rows boreholes use; a push at one point alone is
 met by a pocket narrower than the rays resolve, which bounds nothing),
 and the trial depth is stepped out from the central surface (one cell, then doubling)
@@ -98,15 +99,23 @@ def bound_columns(surface, extra_x=()):
     return list(dict.fromkeys(xs))
 
 
-def _push(task, depth):
-    """chi2 of the picks with the surface held at ``depth`` (m) under ``task.x``."""
+def _push_columns(task):
+    """The x (m) of the points of a push: every cell within a station spacing of
+    ``task.x``. A push narrower than the rays can resolve (a pocket the first arrivals go
+    round) tells nothing, and bounds exist only for averages over resolvable widths
+    (Oldenburg 1983, "Funnel functions in linear and nonlinear appraisal", J. Geophys.
+    Res. 88)."""
     mesh = task.mesh
-    # the surface is held flat across a station spacing either side: a push narrower than
-    # the rays can resolve (a pocket the first arrivals go round) tells nothing, and bounds
-    # exist only for averages over resolvable widths (Oldenburg 1983, J. Geophys. Res. 88)
     k = max(int(round(task.half_width_m / mesh.cell)), 0)
     xs = task.x + mesh.cell * np.arange(-k, k + 1)
-    xs = xs[(xs > mesh.x0) & (xs < mesh.x1)]
+    return xs[(xs > mesh.x0) & (xs < mesh.x1)]
+
+
+def _push(task, depth):
+    """chi2 of the picks with the surface held at ``depth`` (m) below the ground at
+    every column of :func:`_push_columns`, and whether the surface reached it."""
+    mesh = task.mesh
+    xs = _push_columns(task)
     ground = mesh.terrain.elevation(xs, extrapolate=True)
     points = ContourPoints(xs, ground - depth, np.full(xs.size, mesh.cell / 4.0),
                            np.full(xs.size, task.velocity_m_s), tuple(f"bound {i}" for i in range(xs.size)))
@@ -128,8 +137,8 @@ def extremal_bound(task):
     mesh = task.mesh
     j = int(np.argmin(np.abs(np.asarray(task.central.x) - task.x)))
     start = float(contour_surface(task.central, task.velocity_m_s).depth_m[j])
-    ground = float(mesh.terrain.elevation(task.x, extrapolate=True))
-    deepest = ground - mesh.z_bottom - mesh.cell
+    # every point of the push must lie a cell above the grid's bottom
+    deepest = float(np.min(mesh.terrain.elevation(_push_columns(task), extrapolate=True))) - mesh.z_bottom - mesh.cell
     tests, good, bad = [], start, None
     step = mesh.cell
     for _ in range(MAX_STEPS):

@@ -201,8 +201,9 @@ def run_ensemble(picks, mesh, settings, ensemble_settings, layered=None, gradien
     mesh : Mesh
         The central member's grid.
     settings : InversionSettings
-        The inversion's settings (every member runs them with one worker, its own
-        smoothing ratio and target).
+        The inversion's settings (every member runs them with its own smoothing ratio
+        and target, on one worker; the central member, alone before the others, on all
+        the local workers).
     ensemble_settings : EnsembleSettings
     layered : LayeredResult, optional
         The layered interpretation for the layered starts.
