@@ -264,3 +264,17 @@ def test_the_central_member_is_the_run_tomo_invert_makes(survey):
     single = invert(survey, start="gradient", mesh=spec, max_iterations=6)
     assert run.velocity.shape == single.velocity.shape
     np.testing.assert_array_equal(run.velocity, single.velocity)
+
+
+def test_members_that_would_not_fit_in_memory_together_are_refused():
+    # Each member's peak is one inversion's; members run `workers` at a time, so their
+    # sum must fit within nine tenths of the memory available (the single run's rule,
+    # tomo.tomography.budget).
+    from types import SimpleNamespace
+
+    from tomo.api.uncertainty import _check_memory
+
+    estimate = SimpleNamespace(memory_bytes=0.6e9, available_bytes=1.0e9)
+    _check_memory(estimate, 1, "picks.csv")  # one at a time: checked when the grid was planned
+    with pytest.raises(InputError, match="2 members at a time would need about 1.2 GB"):
+        _check_memory(estimate, 2, "picks.csv")

@@ -81,9 +81,11 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
     # the grid, its depth and the layered start exactly as tomo invert chooses them, so
     # the central member is the run tomo invert would make (the depth from the starting
     # model's rays; boreholes placed and the start tied to them)
-    grid, spec, _, start_layers, _, _, placed, _ = _plan(survey, terrain, mesh, start, layered, None, smoothing,
-                                                         notes, opts, None, boreholes,
-                                                         None if boreholes is None else contour_m_s)
+    grid, spec, _, start_layers, _, _, placed, plan = _plan(survey, terrain, mesh, start, layered, None, smoothing,
+                                                            notes, opts, None, boreholes,
+                                                            None if boreholes is None else contour_m_s)
+    workers = workers or os.cpu_count() or 1
+    _check_memory(plan.estimate, 1 if scheduler else min(workers, members - 1), survey.picks_path)
     layered = LayeredResult.from_dict(start_layers) if isinstance(start_layers, dict) else start_layers
     points, extra_boreholes = _borehole_points(survey, grid, terrain, layered, placed, contour_m_s)
     fit = fit_gradient(survey.picks)
@@ -105,7 +107,6 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
             run.write(out)
         return run
 
-    workers = workers or os.cpu_count() or 1
     result = run_ensemble(survey.picks, grid, opts, ens, layered if start == "layered" else None,
                           (fit["v0_m_s"], fit["k_per_s"]), smoothing, workers, scheduler,
                           done=member_results(central.ensemble) if central is not None else done,
@@ -116,6 +117,18 @@ def ensemble(survey: Survey, members: int = 32, seed: int = 0, workers: int | No
         if out is not None:
             run.write(out)
     return run
+
+
+def _check_memory(estimate: Any, concurrent: int, picks_path: str | None) -> None:
+    """Refuse an ensemble whose members, ``concurrent`` at a time on this machine, would
+    not fit in the memory available (each member's peak taken as one inversion's)."""
+    if estimate.available_bytes is None or concurrent <= 1:
+        return  # one at a time: the planning of the grid has checked it already
+    need = concurrent * estimate.memory_bytes
+    if need > 0.9 * estimate.available_bytes:
+        raise InputError(f"{concurrent} members at a time would need about {need / 1e9:.1f} GB of memory, "
+                         f"{estimate.available_bytes / 1e9:.1f} GB is available: use fewer --workers "
+                         "or larger model cells", path=picks_path, field="--workers")
 
 
 def _borehole_points(survey: Survey, grid: Any, terrain: Any, layered: LayeredResult | None,

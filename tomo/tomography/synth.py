@@ -106,11 +106,17 @@ def deep_enough(model, layout, terrain, spec=None, workers=1, progress=None):
             break
         need = max(check.needed_m, 2.0 * spec.depth_m if check.reached_bottom else 0.0)
         spec = replace(spec, depth_m=math.ceil(need / grid.cell - 1e-9) * grid.cell)
-    if not user:
+    unsettled = not user and check.reached_bottom  # still on the bottom after MAX_ROUNDS probes
+    if not user and not unsettled:
         # as deep as the rays need with room: no deeper (the fields cost in proportion)
         spec = replace(spec, depth_m=max(math.ceil(check.needed_m / grid.cell - 1e-9) * grid.cell, 2 * grid.cell))
     grid, spec = mesh_for_picks(layout, terrain, spec)
     result = travel_times(grid, model.slowness_nodes(grid), layout, workers=workers, progress=progress)
+    if unsettled:
+        # the deepest grid tried is kept, and the times may still be late: say so
+        return result, grid, spec, (f"warning: after {MAX_ROUNDS} probes the rays still reached the grid's bottom; "
+                                    f"the times are from a grid {spec.depth_m:g} m deep and may be late where rays "
+                                    f"want to go deeper ({check.describe(layout)}); set a deeper depth_m")
     if user and not check.ok:
         return result, grid, spec, (f"warning: the mesh spec's depth {spec.depth_m:g} m may be too shallow: "
                                     f"{check.describe(layout)}")

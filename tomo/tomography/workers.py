@@ -87,7 +87,9 @@ def check_workers(n, field="workers"):
         value = int(n)
     except (TypeError, ValueError):
         raise InputError(f"{field} must be a whole number of processes, got {n!r}", field=field) from None
-    if value != n or value < 1:
+    if isinstance(n, bool) or value != n:
+        raise InputError(f"{field} must be a whole number of processes, got {n!r}", field=field)
+    if value < 1:
         raise InputError(f"{field} = {n!r}: at least 1 worker process is needed", field=field)
     if value > cores:
         raise InputError(f"{field} = {value}: this machine has {cores} core(s); use 1 to {cores} "
