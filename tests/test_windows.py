@@ -192,3 +192,26 @@ def test_windowed_passes_are_identical_for_any_number_of_workers():
             runs.append(forward_pass(mesh, cell_s, picks, InversionSettings(workers=n), pool))
     np.testing.assert_array_equal(runs[0].time_s, runs[1].time_s)
     assert (runs[0].matrix != runs[1].matrix).nnz == 0
+
+
+def test_a_window_too_shallow_is_widened_and_solved_again(monkeypatch):
+    # Every first window cut to the top 2 m, above the refractor (6 +- 2 m) that the
+    # first arrivals beyond the crossover travel along: the proof after each solve must
+    # fail on the window's bottom, the windows be deepened and solved again, and the
+    # times end equal to the whole grid's (within the 0.02 ms of issue 12's goal).
+    import tomo.tomography.passes as passes
+    from tomo.tomography.windows import Window
+
+    real = passes.plan_pass
+
+    def shallow(*args, **kwargs):
+        bounds, windows = real(*args, **kwargs)
+        return bounds, [Window(w.j0, w.nx, 2) for w in windows]
+
+    picks, mesh = rolling_line()
+    cell_s = np.where(mesh.ground, 1.0 / np.where(mesh.ground, gradient_start(picks, mesh), 1.0), 0.0)
+    whole = forward_pass(mesh, cell_s, picks, InversionSettings(workers=1, windows=False))
+    monkeypatch.setattr(passes, "plan_pass", shallow)
+    cut = forward_pass(mesh, cell_s, picks, InversionSettings(workers=1))
+    assert cut.widened > 0 and all(w.nz > 2 for w in cut.windows)
+    assert np.max(np.abs(cut.time_s - whole.time_s)) <= 0.02e-3
