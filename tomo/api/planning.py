@@ -87,10 +87,7 @@ def _probe(grid: Mesh, velocity: Any, picks: Any, settings: InversionSettings) -
 
 def _deeper(spec: MeshSpec, check: DepthCheck, cell: float) -> float:
     """The depth (m) the next grid should have after ``check``."""
-    need = check.needed_m
-    if check.reached_bottom:
-        need = max(need, 2.0 * float(spec.depth_m or 0.0))
-    return math.ceil(need / cell - 1e-9) * cell
+    return check.next_depth(float(spec.depth_m or 0.0), cell)
 
 
 def plan_grid(picks: Any, terrain: Any, spec: MeshSpec, user_depth: bool, start_for: StartFor,

@@ -66,6 +66,13 @@ class DepthCheck:
     def ok(self):
         return self.needed_m <= self.grid_depth_m + 1e-9 and not self.reached_bottom
 
+    def next_depth(self, current_m, cell_m):
+        """The depth (m, whole cells) a grid should have after this check of a grid
+        ``current_m`` deep: what the rays need with room, and at least twice the current
+        depth when a ray reached the bottom (it may want to go deeper still)."""
+        need = max(self.needed_m, 2.0 * float(current_m)) if self.reached_bottom else self.needed_m
+        return float(np.ceil(need / cell_m - 1e-9) * cell_m)
+
     def describe(self, picks=None):
         """One line: where the deepest ray turns and whether the grid leaves room below it."""
         which = ""
@@ -122,7 +129,6 @@ def shallow_warning(mesh, matrix, picks=None):
     check = check_depth(mesh, matrix)
     if check.ok:
         return None
-    need = check.needed_m if not check.reached_bottom else max(check.needed_m, 2.0 * check.grid_depth_m)
-    need = float(np.ceil(need / mesh.cell - 1e-9) * mesh.cell)
+    need = check.next_depth(check.grid_depth_m, mesh.cell)
     return (f"warning: the grid may be too shallow for the rays: {check.describe(picks)}, but the grid is "
             f"{check.grid_depth_m:g} m deep; give the mesh spec depth_m = {need:g} or more")

@@ -104,8 +104,7 @@ def deep_enough(model, layout, terrain, spec=None, workers=1, progress=None):
         check = check_depth(probe, rays)
         if user or (not check.reached_bottom and check.needed_m <= spec.depth_m):
             break
-        need = max(check.needed_m, 2.0 * spec.depth_m if check.reached_bottom else 0.0)
-        spec = replace(spec, depth_m=math.ceil(need / grid.cell - 1e-9) * grid.cell)
+        spec = replace(spec, depth_m=check.next_depth(spec.depth_m, grid.cell))
     unsettled = not user and check.reached_bottom  # still on the bottom after MAX_ROUNDS probes
     if not user and not unsettled:
         # as deep as the rays need with room: no deeper (the fields cost in proportion)
