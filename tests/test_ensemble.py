@@ -278,3 +278,22 @@ def test_members_that_would_not_fit_in_memory_together_are_refused():
     _check_memory(estimate, 1, "picks.csv")  # one at a time: checked when the grid was planned
     with pytest.raises(InputError, match="2 members at a time would need about 1.2 GB"):
         _check_memory(estimate, 2, "picks.csv")
+
+
+def test_extremal_pushes_honour_the_boreholes_too(survey, tmp_path, monkeypatch):
+    # With boreholes every push of an extremal bound inverts with the boreholes' rows
+    # beside its own, so a bound is what the picks and the boreholes allow together.
+    import tomo.uncertainty.bounds as bounds_module
+
+    real, seen = bounds_module.invert, []
+
+    def spy(*args, points=None, **kwargs):
+        seen.append(tuple(points.label))
+        return real(*args, points=points, **kwargs)
+
+    monkeypatch.setattr(bounds_module, "invert", spy)
+    path = tmp_path / "boreholes.csv"
+    path.write_text("x,depth_m,sigma_m,label\n10,6.4,0.3,BH1\n")
+    ensemble(survey, members=2, seed=3, workers=1, start="gradient", mesh=MESH, max_iterations=4,
+             boreholes=path, contour_m_s=1000.0, bounds=False, bound_x=[30.0])
+    assert seen and all(labels[0] == "BH1" and len(labels) > 1 for labels in seen)
