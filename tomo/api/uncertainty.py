@@ -124,8 +124,10 @@ def _check_memory(estimate: Any, concurrent: int, picks_path: str | None) -> Non
     not fit in the memory available (each member's peak taken as one inversion's)."""
     if estimate.available_bytes is None or concurrent <= 1:
         return  # one at a time: the planning of the grid has checked it already
+    from ..tomography.budget import USABLE_SHARE
+
     need = concurrent * estimate.memory_bytes
-    if need > 0.9 * estimate.available_bytes:
+    if need > USABLE_SHARE * estimate.available_bytes:
         raise InputError(f"{concurrent} members at a time would need about {need / 1e9:.1f} GB of memory, "
                          f"{estimate.available_bytes / 1e9:.1f} GB is available: use fewer --workers "
                          "or larger model cells", path=picks_path, field="--workers")

@@ -25,7 +25,7 @@ def band_text(band, span=None):
         return f"{band.velocity_m_s:.0f} m/s surface: no column lies above the depth of investigation"
     width = np.where(ok, band.width_m, -np.inf)
     j = int(np.argmax(width))
-    widened = int(np.sum(band.bounded_by[ok] != "members"))
+    widened = int(np.sum(band.band_from[ok] != "members"))
     where = "" if span is None else " of the spread"
     text = (f"{band.velocity_m_s:.0f} m/s surface: band (5-95 % of {band.n_members} members) "
             f"{np.median(band.width_m[ok]):.1f} m wide at the median column{where}, {width[j]:.1f} m at most, at "
@@ -64,7 +64,7 @@ def widest_reason(run, band, j):
     """Why the band is widest at column ``j``, in words: an extremal bound, few rays,
     a steep surface, or the members' spread of the contour velocity."""
     reasons = []
-    if band.bounded_by[j] != "members":
+    if band.band_from[j] != "members":
         reasons.append("an extremal bound shows the picks allow the surface that far")
     cov = np.nansum(np.asarray(run.coverage, float), axis=0)
     ok = band.constrained & np.isfinite(band.width_m)

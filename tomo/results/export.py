@@ -99,6 +99,6 @@ def write_surface(path, run, velocity_m_s, source=None, surface=None):
             f.write(f"{surface['x'][k]:.3f},{surface['ground_z'][k]:.3f},{_fmt(surface['depth_m'][k], 3)},"
                     + (f"{_fmt(surface.depth_low_m[k], 3)},{_fmt(surface.depth_high_m[k], 3)}," if band else "")
                     + f"{_fmt(surface['elevation_m'][k], 3)},{int(surface['constrained'][k])}"
-                    + (f",{surface.bounded_by[k]}" if band else "")
+                    + (f",{surface.band_from[k]}" if band else "")
                     + (f",{_fmt(easting[k], 3)},{_fmt(northing[k], 3)}\n" if on_map else "\n"))
     return surface

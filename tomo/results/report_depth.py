@@ -70,7 +70,7 @@ def ensemble_range(run, velocity_m_s):
     is constrained."""
     band = run.band(velocity_m_s)
     ok = np.asarray(band.constrained, bool)
-    widened = int(np.sum(np.asarray(band.bounded_by)[ok] != "members"))
+    widened = int(np.sum(np.asarray(band.band_from)[ok] != "members"))
     return DepthRange(np.asarray(band.x, float), np.where(ok, band.depth_low_m, np.nan),
                       np.where(ok, band.depth_high_m, np.nan), "ensemble",
                       f"5-95 % of the depths of the {band.n_members} members of the ensemble (each with its picks "

@@ -87,7 +87,7 @@ def section_surfaces(run, contours_m_s):
             out.append(SectionSurface(f"contour-{value:.0f}", f"{value:.0f} m/s iso-velocity surface, median of "
                                       f"{b.n_members} members with their 5-95 % band", float(value), b.x, b.ground_z,
                                       b.depth_m, b.elevation_m, b.constrained, b.ground_z - b.depth_high_m,
-                                      b.ground_z - b.depth_low_m, b.bounded_by))
+                                      b.ground_z - b.depth_low_m, b.band_from))
             continue
         s = contour_surface(run, value)
         out.append(SectionSurface(f"contour-{value:.0f}", f"{value:.0f} m/s iso-velocity surface of the tomogram",

@@ -33,6 +33,9 @@ ENTRIES_PER_CELL = 2.6
 #: Ray length over the straight source-receiver distance (diving and head waves;
 #: measured on the same lines: 1.05-1.15).
 PATH_FACTOR = 1.15
+#: Share of the memory available now that a run may plan to use (the rest for the
+#: system and other programs; common practice).
+USABLE_SHARE = 0.9
 #: Memory of the main process and of a worker before the run (Python with numpy,
 #: scipy and scikit-fmm loaded; measured), bytes.
 PROCESS_BYTES = 200e6
@@ -99,7 +102,7 @@ class RunEstimate:
     @property
     def fits(self):
         """Whether the peak fits in nine tenths of the memory available now."""
-        return self.available_bytes is None or self.memory_bytes <= 0.9 * self.available_bytes
+        return self.available_bytes is None or self.memory_bytes <= USABLE_SHARE * self.available_bytes
 
     def describe(self):
         """One line: time and memory."""
@@ -204,6 +207,6 @@ def suggest_cell(estimate, cell_m, available=None):
         factor = bigger / cell_m
         if factor < 1.01 or factor > 16:
             continue
-        if base + matrix / factor + rest / factor ** 2 <= 0.9 * available:
+        if base + matrix / factor + rest / factor ** 2 <= USABLE_SHARE * available:
             return bigger
     return None

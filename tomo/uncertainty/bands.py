@@ -58,7 +58,7 @@ class SurfaceBand:
         Elevation of the median surface, m.
     constrained : ndarray of bool
         The central run's surface lies above its depth of investigation.
-    bounded_by : ndarray of object
+    band_from : ndarray of object
         Per column, which method set the band's edges: "members", or "members +
         extremal bound" where a bound widened it.
     n_members : int
@@ -75,7 +75,7 @@ class SurfaceBand:
     depth_high_m: np.ndarray
     elevation_m: np.ndarray
     constrained: np.ndarray
-    bounded_by: np.ndarray
+    band_from: np.ndarray
     n_members: int
     member_depths: np.ndarray
 
@@ -122,10 +122,10 @@ def surface_band(run, velocity_m_s, percentiles=(5.0, 95.0)):
     low, mid, high = np.percentile(counted, [percentiles[0], 50.0, percentiles[1]], axis=0)
     none = ~np.any(np.isfinite(depths), axis=0)
     low, mid, high = (np.where(none, np.nan, a) for a in (low, mid, high))
-    bounded_by = np.full(mid.size, "members", dtype=object)
-    low, high = _widen(run, velocity_m_s, central.x, low, high, bounded_by)
+    band_from = np.full(mid.size, "members", dtype=object)
+    low, high = _widen(run, velocity_m_s, central.x, low, high, band_from)
     return SurfaceBand(float(central.velocity_m_s), central.x, central.ground_z, mid, low, high,
-                       central.ground_z - mid, central.constrained, bounded_by, int(kept.shape[0]), depths)
+                       central.ground_z - mid, central.constrained, band_from, int(kept.shape[0]), depths)
 
 
 def _member_depths(run, velocity, value):
@@ -159,7 +159,7 @@ def member_contours(index, lo_v, hi_v):
     return np.exp(np.log(lo_v) + u * (np.log(hi_v) - np.log(lo_v)))
 
 
-def _widen(run, velocity_m_s, x, low, high, bounded_by):
+def _widen(run, velocity_m_s, x, low, high, band_from):
     """Widen the band with the record's extremal bounds for this velocity."""
     low, high = low.copy(), high.copy()
     for b in run.ensemble.bounds:
@@ -171,7 +171,7 @@ def _widen(run, velocity_m_s, x, low, high, bounded_by):
             w = 1.0 - abs(k - j) / (BOUND_REACH_CELLS + 1)
             shallow, deep = low[k] - w * up, high[k] + w * down
             if shallow < low[k] or deep > high[k]:
-                bounded_by[k] = "members + extremal bound"
+                band_from[k] = "members + extremal bound"
             low[k], high[k] = min(low[k], shallow), max(high[k], deep)
     return low, high
 
